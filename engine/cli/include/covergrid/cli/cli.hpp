@@ -1,0 +1,23 @@
+#pragma once
+/// The command-line front end as a library call, so that tests reach every
+/// command without a subprocess. main() only forwards to run_cli().
+#include <iosfwd>
+#include <string>
+#include <vector>
+
+namespace covergrid::cli {
+
+/// Exit statuses (design section 9).
+enum Exit : int {
+  exit_ok = 0,
+  exit_internal = 1,
+  exit_bad_input = 2,
+  exit_refuted = 3,
+  exit_inconclusive = 4,
+};
+
+/// Runs `covergrid <args...>` (args excludes the program name) and returns the
+/// exit status; normal output goes to `out`, messages and progress to `err`.
+int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+
+}  // namespace covergrid::cli

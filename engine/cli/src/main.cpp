@@ -1,0 +1,8 @@
+#include "covergrid/cli/cli.hpp"
+
+#include <iostream>
+
+int main(int argc, char** argv) {
+  std::vector<std::string> args(argv + 1, argv + argc);
+  return covergrid::cli::run_cli(args, std::cout, std::cerr);
+}

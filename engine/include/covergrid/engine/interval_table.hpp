@@ -1,0 +1,28 @@
+#pragma once
+/// An interval table: one method's clipped limits for x = 0..n at one
+/// (level, side), with the per-x quantities the metrics need. Built once per
+/// (method, level, side, n) and shared by every p and every replicate
+/// (design principle 2).
+#include "covergrid/methods/interval.hpp"
+
+#include <vector>
+
+namespace covergrid::engine {
+
+struct IntervalTable {
+  int n = 0;
+  bool supported = true;     // false: the method does not define this side
+  std::vector<double> lower;  // clipped, size n + 1
+  std::vector<double> upper;
+  std::vector<double> width;       // upper - lower
+  std::vector<double> degenerate;  // 1.0 where upper == lower, else 0.0
+  std::vector<double> overshoot;   // 1.0 where raw lower < 0 or raw upper > 1
+  bool monotone = false;  // lower and upper both non-decreasing in x
+};
+
+/// Builds the table; a method that does not support `side` gives an
+/// unsupported table (its metrics are NaN).
+IntervalTable build_table(const methods::IntervalMethod& method, int n, double level,
+                          methods::Side side);
+
+}  // namespace covergrid::engine

@@ -1,0 +1,40 @@
+#pragma once
+/// Running a scenario: plan, resume, parallel evaluation, summaries.
+#include "covergrid/engine/scenario.hpp"
+#include "covergrid/engine/sink.hpp"
+
+#include <atomic>
+#include <cstddef>
+#include <functional>
+
+namespace covergrid::engine {
+
+struct RunOptions {
+  int threads = 0;  // 0 = all hardware threads
+  /// Called from the calling thread after each batch: (cells done, cells total).
+  std::function<void(std::size_t, std::size_t)> progress;
+  /// When set and true, the run stops at the next batch boundary.
+  const std::atomic<bool>* stop = nullptr;
+};
+
+struct RunReport {
+  std::size_t chunks_total = 0;
+  std::size_t chunks_computed = 0;
+  std::size_t chunks_resumed = 0;  // already complete in the output
+  bool interrupted = false;
+};
+
+/// Runs every chunk not yet complete in `sink`, then the summaries, then
+/// sink.finish(). On interruption it checkpoints and returns without finish().
+RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options = {});
+
+/// Computes one chunk (exposed for tests and benchmarks).
+ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk);
+
+/// Grid statistics of one (combo, n) row from its p values; `nominal` is the
+/// level. Writes Stat 0 .. grid_stat_count-1 into stats[0 .. grid_stat_count-1].
+void grid_stats(const double* coverage, const double* width, const double* miss_low,
+                const double* miss_high, const std::vector<double>& p, double nominal,
+                double* stats);
+
+}  // namespace covergrid::engine

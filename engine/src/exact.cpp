@@ -1,0 +1,225 @@
+#include "covergrid/engine/exact.hpp"
+
+#include "covergrid/methods/numerics.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <set>
+#include <vector>
+
+namespace covergrid::engine {
+
+namespace {
+constexpr double nan = std::numeric_limits<double>::quiet_NaN();
+constexpr double endpoint_merge_tolerance = 1e-12;
+}
+
+CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& window, double p) {
+  CellMetrics m;
+  if (!table.supported) {
+    m.fill(nan);
+    return m;
+  }
+  const double* lower = table.lower.data() + window.lo;
+  const double* upper = table.upper.data() + window.lo;
+  const double* width = table.width.data() + window.lo;
+  const double* degen = table.degenerate.data() + window.lo;
+  const double* over = table.overshoot.data() + window.lo;
+  const double* w = window.w.data();
+  const std::size_t size = window.w.size();
+  // Widths are accumulated around a shift (the width at the window's middle)
+  // so that the variance does not cancel.
+  const double shift = width[size / 2];
+  double cov = 0, below = 0, above = 0, wsum = 0, wsq = 0, deg = 0, ovs = 0;
+  for (std::size_t i = 0; i < size; ++i) {
+    const double wi = w[i];
+    const double d = width[i] - shift;
+    cov += (lower[i] <= p && p <= upper[i]) ? wi : 0.0;
+    below += upper[i] < p ? wi : 0.0;
+    above += lower[i] > p ? wi : 0.0;
+    wsum += wi * d;
+    wsq += wi * d * d;
+    deg += wi * degen[i];
+    ovs += wi * over[i];
+  }
+  m[index(Metric::coverage)] = cov;
+  m[index(Metric::miss_low)] = below;
+  m[index(Metric::miss_high)] = above;
+  m[index(Metric::width)] = shift + wsum;
+  m[index(Metric::width_sd)] = std::sqrt(std::max(0.0, wsq - wsum * wsum));
+  m[index(Metric::degenerate)] = deg;
+  m[index(Metric::overshoot)] = ovs;
+  return m;
+}
+
+double coverage_by_enumeration(const IntervalTable& table, double p) {
+  if (!table.supported) return nan;
+  double cov = 0;
+  for (int x = 0; x <= table.n; ++x) {
+    const std::size_t i = static_cast<std::size_t>(x);
+    if (table.lower[i] <= p && p <= table.upper[i]) cov += methods::binomial_pmf(x, table.n, p);
+  }
+  return cov;
+}
+
+double run_probability(int a, int b, int n, double p) {
+  if (a > b) return 0.0;
+  return 1.0 - methods::binomial_cdf(a - 1, n, p) - methods::binomial_sf(b, n, p);
+}
+
+namespace {
+
+/// The covered set during the sweep: membership per x and the positions
+/// where membership changes (boundaries), so contiguity is "two boundaries".
+class CoveredSet {
+ public:
+  explicit CoveredSet(int n) : in_(static_cast<std::size_t>(n) + 1, 0), n_(n) {}
+  void set(int x, bool value) {
+    if (static_cast<bool>(in_[static_cast<std::size_t>(x)]) == value) return;
+    in_[static_cast<std::size_t>(x)] = value;
+    toggle(x);      // boundary between x-1 and x
+    toggle(x + 1);  // boundary between x and x+1
+  }
+  bool contiguous() const { return boundaries_.size() <= 2; }
+  bool empty() const { return boundaries_.empty(); }
+  int first() const { return *boundaries_.begin(); }
+  int last() const { return *boundaries_.rbegin() - 1; }
+  bool contains(int x) const { return in_[static_cast<std::size_t>(x)] != 0; }
+  int n() const { return n_; }
+
+ private:
+  void toggle(int position) {
+    const auto it = boundaries_.find(position);
+    if (it == boundaries_.end()) boundaries_.insert(position); else boundaries_.erase(it);
+  }
+  std::vector<char> in_;
+  std::set<int> boundaries_;
+  int n_;
+};
+
+double set_probability(const CoveredSet& s, double p) {
+  if (s.empty()) return 0.0;
+  if (s.contiguous()) return run_probability(s.first(), s.last(), s.n(), p);
+  double sum = 0;
+  for (int x = 0; x <= s.n(); ++x)
+    if (s.contains(x)) sum += methods::binomial_pmf(x, s.n(), p);
+  return sum;
+}
+
+}  // namespace
+
+InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi) {
+  InfimumResult best;
+  if (!table.supported) return {nan, nan, 0, false};
+  const int n = table.n;
+  // Endpoints strictly inside the range, each with what happens there.
+  struct Event {
+    double p;
+    int x;
+    bool enters;  // true at L_x (x joins just at p), false at U_x (x leaves just after p)
+  };
+  std::vector<Event> events;
+  events.reserve(2 * static_cast<std::size_t>(n) + 2);
+  CoveredSet covered(n);
+  // The covered set just above p_lo: L_x <= p_lo < U_x, or L_x <= p_lo and
+  // U_x == p_lo handled below as an endpoint at the range start.
+  for (int x = 0; x <= n; ++x) {
+    const std::size_t i = static_cast<std::size_t>(x);
+    const double l = table.lower[i], u = table.upper[i];
+    if (l <= p_lo && u > p_lo) covered.set(x, true);
+    if (l > p_lo && l < p_hi) events.push_back({l, x, true});
+    if (u > p_lo && u < p_hi && u >= l) events.push_back({u, x, false});
+  }
+  std::sort(events.begin(), events.end(),
+            [](const Event& a, const Event& b) { return a.p < b.p; });
+
+  best.value = std::numeric_limits<double>::infinity();
+  auto consider = [&](double value, double where, int from) {
+    if (value < best.value) best = {value, where, from, best.refined};
+  };
+  // The point value at p_lo itself (a closed range includes it).
+  {
+    double at = 0;
+    for (int x = 0; x <= n; ++x) {
+      const std::size_t i = static_cast<std::size_t>(x);
+      if (table.lower[i] <= p_lo && p_lo <= table.upper[i]) at += methods::binomial_pmf(x, n, p_lo);
+    }
+    consider(at, p_lo, 0);
+  }
+  if (p_hi <= p_lo) return best;
+
+  double left = p_lo;
+  std::size_t e = 0;
+  for (;;) {
+    const double right = e < events.size() ? events[e].p : p_hi;
+    // The segment (left, right) with the current covered set.
+    if (right > left) {
+      if (covered.contiguous()) {
+        consider(set_probability(covered, left), left, +1);
+        consider(set_probability(covered, right), right, -1);
+      } else {
+        best.refined = true;
+        constexpr int points = 33;
+        for (int i = 0; i < points; ++i) {
+          const double t = left + (right - left) * i / (points - 1);
+          consider(set_probability(covered, t), t, i == 0 ? +1 : (i == points - 1 ? -1 : 0));
+        }
+      }
+    }
+    if (e >= events.size()) break;
+    // Apply every event at this p. At the point itself both the entering and
+    // the leaving x are covered (closed intervals); its value is never below
+    // the one-sided limits, so only the limits are candidates.
+    // Endpoints closer than endpoint_merge_tolerance are one event: limits are
+    // only computed to about 1e-12 (the root-finding tolerance), and methods
+    // such as Blaker's have U(x) = L(x') exactly in theory; a rounding gap
+    // between them must not count as a dip in coverage.
+    const double at = events[e].p;
+    std::size_t group_end = e;
+    while (group_end < events.size() && events[group_end].p <= at + endpoint_merge_tolerance) ++group_end;
+    const double last = events[group_end - 1].p;
+    // Entries first (an x that also leaves within the group never joins), then exits.
+    for (std::size_t g = e; g < group_end; ++g)
+      if (events[g].enters && table.upper[static_cast<std::size_t>(events[g].x)] > last)
+        covered.set(events[g].x, true);
+    for (std::size_t g = e; g < group_end; ++g)
+      if (!events[g].enters) covered.set(events[g].x, false);
+    e = group_end;
+    left = events[e - 1].p;
+  }
+  // The point value at p_hi (included in the closed range).
+  {
+    double at = 0;
+    for (int x = 0; x <= n; ++x) {
+      const std::size_t i = static_cast<std::size_t>(x);
+      if (table.lower[i] <= p_hi && p_hi <= table.upper[i]) at += methods::binomial_pmf(x, n, p_hi);
+    }
+    consider(at, p_hi, 0);
+  }
+  return best;
+}
+
+double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi) {
+  if (!table.supported) return nan;
+  const int n = table.n;
+  if (p_hi <= p_lo) return coverage_by_enumeration(table, p_lo);
+  double sum = 0;
+  for (int x = 0; x <= n; ++x) {
+    const std::size_t i = static_cast<std::size_t>(x);
+    const double a = std::max(table.lower[i], p_lo);
+    const double b = std::min(table.upper[i], p_hi);
+    if (b <= a) continue;
+    // I_b - I_a for Beta(x+1, n-x+1); taken on the smaller-tail side.
+    const double s = x + 1.0, t = n - x + 1.0;
+    const double mean = s / (s + t);
+    double mass = 0;
+    if (b <= mean) mass = methods::beta_cdf(s, t, b) - methods::beta_cdf(s, t, a);
+    else if (a >= mean) mass = methods::beta_ccdf(s, t, a) - methods::beta_ccdf(s, t, b);
+    else mass = 1.0 - methods::beta_cdf(s, t, a) - methods::beta_ccdf(s, t, b);
+    sum += mass;
+  }
+  return sum / ((n + 1.0) * (p_hi - p_lo));
+}
+
+}  // namespace covergrid::engine

@@ -1,0 +1,268 @@
+#include "covergrid/engine/run.hpp"
+
+#include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/exact.hpp"
+#include "covergrid/engine/interval_table.hpp"
+
+#include <tbb/global_control.h>
+#include <tbb/parallel_for.h>
+#include <tbb/task_arena.h>
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <map>
+#include <memory>
+#include <stdexcept>
+
+namespace covergrid::engine {
+
+namespace {
+
+constexpr double nan = std::numeric_limits<double>::quiet_NaN();
+
+/// One row's tables, one per combo (side-major, then level, then method).
+using RowTables = std::vector<IntervalTable>;
+
+struct Combo {
+  Side side;
+  double level;
+  const methods::IntervalMethod* method;
+};
+
+std::vector<Combo> combos_of(const Scenario& s) {
+  std::vector<Combo> out;
+  out.reserve(combo_count(s));
+  for (Side side : s.sides)
+    for (double level : s.levels)
+      for (const auto& m : s.methods) out.push_back({side, level, m.method.get()});
+  return out;
+}
+
+IntervalTable table_for(const Combo& c, int n) { return build_table(*c.method, n, c.level, c.side); }
+
+/// Fills a chunk's results from prebuilt tables (tables[i] for row n_begin + i).
+ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk,
+                                const std::vector<const RowTables*>& tables) {
+  const std::size_t combos = combo_count(scenario);
+  ChunkResult r;
+  r.spec = chunk;
+  r.combos = combos;
+  const std::size_t cells = chunk.n_count * chunk.p_count;
+  if (scenario.exact) {
+    r.has_exact = true;
+    for (auto& v : r.exact) v.assign(combos * cells, nan);  // poisoned until written
+    BinomialWindow window;
+    for (std::size_t i = 0; i < chunk.n_count; ++i) {
+      const int n = scenario.n[chunk.n_begin + i];
+      const RowTables& row = *tables[i];
+      for (std::size_t j = 0; j < chunk.p_count; ++j) {
+        const double p = scenario.p[chunk.p_begin + j];
+        window.fill(n, p);
+        for (std::size_t c = 0; c < combos; ++c) {
+          const CellMetrics m = exact_metrics(row[c], window, p);
+          const std::size_t at = c * cells + i * chunk.p_count + j;
+          for (std::size_t k = 0; k < metric_count; ++k) r.exact[k][at] = m[k];
+        }
+      }
+    }
+  }
+  if (chunk.p_begin == 0) {
+    r.has_row_stats = true;
+    for (auto& v : r.row_stats) v.assign(combos * chunk.n_count, nan);
+    const double p_lo = scenario.p.front(), p_hi = scenario.p.back();
+    for (std::size_t c = 0; c < combos; ++c)
+      for (std::size_t i = 0; i < chunk.n_count; ++i) {
+        const IntervalTable& t = (*tables[i])[c];
+        const std::size_t at = c * chunk.n_count + i;
+        const InfimumResult inf = coverage_infimum(t, p_lo, p_hi);
+        r.row_stats[index(Stat::inf_coverage) - grid_stat_count][at] = inf.value;
+        r.row_stats[index(Stat::inf_coverage_p) - grid_stat_count][at] = inf.where;
+        r.row_stats[index(Stat::inf_coverage_from) - grid_stat_count][at] =
+            t.supported ? inf.from : nan;
+        r.row_stats[index(Stat::inf_refined) - grid_stat_count][at] =
+            t.supported ? (inf.refined ? 1.0 : 0.0) : nan;
+        r.row_stats[index(Stat::mean_coverage_continuous) - grid_stat_count][at] =
+            coverage_uniform_mean(t, p_lo, p_hi);
+      }
+  }
+  return r;
+}
+
+/// Verifies that nothing poisoned remains where a value was due.
+void check_written(const ChunkResult& r, const Scenario& scenario) {
+  if (!r.has_exact) return;
+  const std::size_t cells = r.spec.n_count * r.spec.p_count;
+  const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
+  for (std::size_t c = 0; c < r.combos; ++c) {
+    const Side side = scenario.sides[c / (levels * methods)];
+    if (!scenario.methods[c % methods].method->supports(side)) continue;  // NaN by design
+    for (std::size_t k = 0; k < cells; ++k)
+      if (std::isnan(r.exact[index(Metric::coverage)][c * cells + k]))
+        throw std::logic_error("internal: a computed cell was left unset in chunk " +
+                               std::to_string(r.spec.id));
+  }
+}
+
+}  // namespace
+
+ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk) {
+  const auto combos = combos_of(scenario);
+  std::vector<RowTables> rows(chunk.n_count);
+  std::vector<const RowTables*> ptrs;
+  for (std::size_t i = 0; i < chunk.n_count; ++i) {
+    for (const auto& c : combos) rows[i].push_back(table_for(c, scenario.n[chunk.n_begin + i]));
+    ptrs.push_back(&rows[i]);
+  }
+  return compute_with_tables(scenario, chunk, ptrs);
+}
+
+void grid_stats(const double* coverage, const double* width, const double* miss_low,
+                const double* miss_high, const std::vector<double>& p, double nominal,
+                double* stats) {
+  const std::size_t count = p.size();
+  double sum = 0, sq = 0, below = 0, w = 0, lo = 0, hi = 0;
+  double min = std::numeric_limits<double>::infinity(), min_p = nan;
+  for (std::size_t j = 0; j < count; ++j) {
+    const double c = coverage[j];
+    sum += c;
+    sq += (c - nominal) * (c - nominal);
+    below += c < nominal ? 1.0 : 0.0;
+    w += width[j];
+    lo += miss_low[j];
+    hi += miss_high[j];
+    if (c < min) {
+      min = c;
+      min_p = p[j];
+    }
+  }
+  const double k = static_cast<double>(count);
+  if (std::isnan(sum)) {
+    for (std::size_t s = 0; s < grid_stat_count; ++s) stats[s] = nan;
+    return;
+  }
+  stats[index(Stat::mean_coverage)] = sum / k;
+  stats[index(Stat::min_coverage)] = min;
+  stats[index(Stat::min_coverage_p)] = min_p;
+  stats[index(Stat::rms_deviation)] = std::sqrt(sq / k);
+  stats[index(Stat::share_below)] = below / k;
+  stats[index(Stat::mean_width)] = w / k;
+  stats[index(Stat::mean_miss_low)] = lo / k;
+  stats[index(Stat::mean_miss_high)] = hi / k;
+}
+
+namespace {
+
+void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
+  const std::size_t combos = combo_count(scenario);
+  const std::size_t points = scenario.p.size();
+  const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
+  std::vector<double> cov, wid, mlo, mhi, stats;
+  for (std::size_t model = 0; model < scenario.models.size(); ++model)
+    for (std::size_t nb = 0; nb < scenario.n.size(); nb += plan.n_block) {
+      const std::size_t count = std::min(plan.n_block, scenario.n.size() - nb);
+      sink.read_rows(Metric::coverage, model, nb, count, cov);
+      sink.read_rows(Metric::width, model, nb, count, wid);
+      sink.read_rows(Metric::miss_low, model, nb, count, mlo);
+      sink.read_rows(Metric::miss_high, model, nb, count, mhi);
+      stats.assign(grid_stat_count * combos * count, nan);
+      double row[grid_stat_count];
+      for (std::size_t c = 0; c < combos; ++c) {
+        const double nominal = scenario.levels[(c / methods) % levels];
+        for (std::size_t i = 0; i < count; ++i) {
+          const std::size_t at = (c * count + i) * points;
+          grid_stats(&cov[at], &wid[at], &mlo[at], &mhi[at], scenario.p, nominal, row);
+          for (std::size_t s = 0; s < grid_stat_count; ++s)
+            stats[(s * combos + c) * count + i] = row[s];
+        }
+      }
+      sink.write_grid_stats(model, nb, count, stats);
+    }
+}
+
+}  // namespace
+
+RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options) {
+  const Plan plan = make_plan(scenario);
+  const auto combos = combos_of(scenario);
+  RunReport report;
+  report.chunks_total = plan.chunks.size();
+  const std::vector<char> done = sink.completed();
+  if (done.size() != plan.chunks.size())
+    throw std::logic_error("internal: sink reports a different chunk count than the plan");
+
+  std::vector<const ChunkSpec*> todo;
+  std::size_t cells_done = 0, cells_total = 0;
+  for (const auto& c : plan.chunks) {
+    cells_total += c.n_count * c.p_count;
+    if (done[c.id]) {
+      ++report.chunks_resumed;
+      cells_done += c.n_count * c.p_count;
+    } else {
+      todo.push_back(&c);
+    }
+  }
+
+  const int threads = options.threads > 0 ? options.threads : tbb::this_task_arena::max_concurrency();
+  tbb::task_arena arena(threads);
+  const std::size_t batch = static_cast<std::size_t>(threads) * 4;
+
+  // Tables per (model, n index), kept while chunks of that row remain.
+  std::map<std::pair<std::size_t, std::size_t>, std::unique_ptr<RowTables>> cache;
+  std::map<std::pair<std::size_t, std::size_t>, std::size_t> remaining;
+  for (const ChunkSpec* c : todo)
+    for (std::size_t i = 0; i < c->n_count; ++i) ++remaining[{c->model, c->n_begin + i}];
+
+  for (std::size_t start = 0; start < todo.size(); start += batch) {
+    if (options.stop && options.stop->load()) {
+      report.interrupted = true;
+      break;
+    }
+    const std::size_t end = std::min(todo.size(), start + batch);
+    // Phase A: build the tables this batch needs, in parallel over (row, combo).
+    std::vector<std::pair<std::size_t, std::size_t>> missing;
+    for (std::size_t k = start; k < end; ++k)
+      for (std::size_t i = 0; i < todo[k]->n_count; ++i) {
+        const auto key = std::make_pair(todo[k]->model, todo[k]->n_begin + i);
+        if (!cache.contains(key)) {
+          cache[key] = std::make_unique<RowTables>(combos.size());
+          missing.push_back(key);
+        }
+      }
+    arena.execute([&] {
+      tbb::parallel_for(std::size_t{0}, missing.size() * combos.size(), [&](std::size_t t) {
+        const auto& key = missing[t / combos.size()];
+        (*cache.at(key))[t % combos.size()] = table_for(combos[t % combos.size()], scenario.n[key.second]);
+      });
+    });
+    // Phase B: compute the chunks in parallel; each is independent.
+    std::vector<ChunkResult> results(end - start);
+    arena.execute([&] {
+      tbb::parallel_for(start, end, [&](std::size_t k) {
+        const ChunkSpec& c = *todo[k];
+        std::vector<const RowTables*> rows;
+        for (std::size_t i = 0; i < c.n_count; ++i) rows.push_back(cache.at({c.model, c.n_begin + i}).get());
+        results[k - start] = compute_with_tables(scenario, c, rows);
+      });
+    });
+    // Phase C: hand over in plan order, then release finished rows.
+    for (auto& r : results) {
+      check_written(r, scenario);
+      sink.write_chunk(r);
+      cells_done += r.spec.n_count * r.spec.p_count;
+      ++report.chunks_computed;
+      for (std::size_t i = 0; i < r.spec.n_count; ++i) {
+        const auto key = std::make_pair(r.spec.model, r.spec.n_begin + i);
+        if (--remaining[key] == 0) cache.erase(key);
+      }
+    }
+    sink.checkpoint();
+    if (options.progress) options.progress(cells_done, cells_total);
+  }
+  if (report.interrupted) return report;
+  summarise(scenario, plan, sink);
+  sink.finish();
+  return report;
+}
+
+}  // namespace covergrid::engine

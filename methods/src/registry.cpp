@@ -1,0 +1,116 @@
+// The registry: one line per method. Adding a method = one source file in
+// methods/src, one line here, one test file in tests/methods.
+#include "covergrid/methods/registry.hpp"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cmath>
+
+namespace covergrid::methods {
+
+std::span<const MethodEntry> registry() {
+  static const std::vector<MethodEntry> entries = {
+      wald_entry(),
+      wald_cc_entry(),
+      wald_half_entry(),
+      wilson_entry(),
+      wilson_cc_entry(),
+      agresti_coull_entry(),
+      clopper_pearson_entry(),
+      mid_p_entry(),
+      jeffreys_entry(),
+      bayes_hpd_entry(),
+      likelihood_ratio_entry(),
+      arcsine_entry(),
+      logit_entry(),
+      blaker_entry(),
+  };
+  return entries;
+}
+
+const MethodEntry* find_method(std::string_view id) {
+  for (const auto& e : registry())
+    if (e.info.id == id) return &e;
+  return nullptr;
+}
+
+std::string param_text(const ParamValue& value) {
+  if (const bool* b = std::get_if<bool>(&value)) return *b ? "true" : "false";
+  if (const double* d = std::get_if<double>(&value)) return fmt::format("{}", *d);
+  return std::get<std::string>(value);
+}
+
+ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given) {
+  ParamValues out;
+  for (const auto& [key, value] : given) {
+    const auto spec = std::find_if(entry.info.params.begin(), entry.info.params.end(),
+                                   [&](const ParamSpec& s) { return s.name == key; });
+    if (spec == entry.info.params.end()) {
+      std::string known;
+      for (const auto& s : entry.info.params) known += (known.empty() ? "" : ", ") + s.name;
+      throw ParameterError(key, fmt::format("method '{}' takes no parameter '{}'{}", entry.info.id,
+                                            key,
+                                            known.empty() ? std::string(" (it takes none)")
+                                                          : " (it takes: " + known + ")"));
+    }
+    switch (spec->kind) {
+      case ParamSpec::Kind::boolean:
+        if (!std::holds_alternative<bool>(value))
+          throw ParameterError(key, fmt::format("parameter '{}' of method '{}' must be true or false",
+                                                key, entry.info.id));
+        break;
+      case ParamSpec::Kind::number: {
+        const double* d = std::get_if<double>(&value);
+        if (!d)
+          throw ParameterError(key, fmt::format("parameter '{}' of method '{}' must be a number", key,
+                                                entry.info.id));
+        if (!std::isfinite(*d) || *d <= spec->min || (spec->max > 0 && *d > spec->max))
+          throw ParameterError(
+              key, spec->max > 0
+                       ? fmt::format("parameter '{}' of method '{}' = {} is outside ({}, {}]", key,
+                                     entry.info.id, *d, spec->min, spec->max)
+                       : fmt::format("parameter '{}' of method '{}' = {} must be greater than {}",
+                                     key, entry.info.id, *d, spec->min));
+        break;
+      }
+      case ParamSpec::Kind::choice: {
+        const std::string* s = std::get_if<std::string>(&value);
+        if (!s || std::find(spec->choices.begin(), spec->choices.end(), *s) == spec->choices.end()) {
+          std::string list;
+          for (const auto& c : spec->choices) list += (list.empty() ? "\"" : ", \"") + c + "\"";
+          throw ParameterError(key, fmt::format("parameter '{}' of method '{}' must be one of {}",
+                                                key, entry.info.id, list));
+        }
+        break;
+      }
+    }
+    out[key] = value;
+  }
+  for (const auto& spec : entry.info.params)
+    if (!out.contains(spec.name)) out[spec.name] = spec.default_value;
+  return out;
+}
+
+std::string default_label(const MethodEntry& entry, const ParamValues& resolved) {
+  std::string extra;
+  for (const auto& spec : entry.info.params) {
+    const auto it = resolved.find(spec.name);
+    if (it == resolved.end() || it->second == spec.default_value) continue;
+    extra += (extra.empty() ? "" : ",") + spec.name + "=" + param_text(it->second);
+  }
+  return extra.empty() ? entry.info.id : entry.info.id + "(" + extra + ")";
+}
+
+MethodInstance make_instance(std::string_view id, const ParamValues& given, std::string label) {
+  const MethodEntry* entry = find_method(id);
+  if (!entry) throw ParameterError("id", fmt::format("unknown method id '{}'", id));
+  MethodInstance inst;
+  inst.entry = entry;
+  inst.params = resolve_params(*entry, given);
+  inst.label = label.empty() ? default_label(*entry, inst.params) : std::move(label);
+  inst.method = entry->make(inst.params);
+  return inst;
+}
+
+}  // namespace covergrid::methods

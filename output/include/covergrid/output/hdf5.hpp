@@ -1,0 +1,116 @@
+#pragma once
+/// A small RAII layer over the HDF5 C API: every handle is closed by its
+/// destructor and every call's status is checked (a failure throws CubeError
+/// naming the file and the operation). Only what the cube needs.
+#include <hdf5.h>
+
+#include <cstdint>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+namespace covergrid::output {
+
+/// A cube file that cannot be read, written or understood.
+class CubeError : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+/// Silences HDF5's own error printing; we report errors ourselves.
+void quiet_hdf5_errors();
+
+class Handle {
+ public:
+  using Closer = herr_t (*)(hid_t);
+  Handle() = default;
+  Handle(hid_t id, Closer closer) : id_(id), closer_(closer) {}
+  Handle(Handle&& o) noexcept : id_(o.id_), closer_(o.closer_) { o.id_ = H5I_INVALID_HID; }
+  Handle& operator=(Handle&& o) noexcept {
+    if (this != &o) {
+      reset();
+      id_ = o.id_;
+      closer_ = o.closer_;
+      o.id_ = H5I_INVALID_HID;
+    }
+    return *this;
+  }
+  Handle(const Handle&) = delete;
+  Handle& operator=(const Handle&) = delete;
+  ~Handle() { reset(); }
+  hid_t get() const { return id_; }
+  explicit operator bool() const { return id_ >= 0; }
+  void reset() {
+    if (id_ >= 0 && closer_) closer_(id_);
+    id_ = H5I_INVALID_HID;
+  }
+
+ private:
+  hid_t id_ = H5I_INVALID_HID;
+  Closer closer_ = nullptr;
+};
+
+/// Throws CubeError(context + what) when status < 0; returns the value.
+hid_t check_id(hid_t id, const std::string& what);
+void check(herr_t status, const std::string& what);
+
+class File {
+ public:
+  static File create(const std::string& path);       // truncates
+  static File open(const std::string& path, bool writable);
+  hid_t id() const { return h_.get(); }
+  const std::string& path() const { return path_; }
+  void flush() const;
+  void close() { h_.reset(); }
+
+ private:
+  Handle h_;
+  std::string path_;
+};
+
+// Groups and datasets by path inside a file or group.
+Handle create_group(hid_t parent, const std::string& name);
+Handle open_group(hid_t parent, const std::string& name);
+bool exists(hid_t parent, const std::string& path);
+Handle open_dataset(hid_t parent, const std::string& name);
+
+/// A chunked, shuffled and deflated float64 dataset filled with NaN.
+Handle create_double_dataset(hid_t parent, const std::string& name,
+                             const std::vector<hsize_t>& dims, const std::vector<hsize_t>& chunk);
+/// A 1-D dataset of doubles / int64 / uint8 / UTF-8 strings, written at once.
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<double>& v);
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::int64_t>& v);
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::uint8_t>& v);
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::string>& v);
+
+/// Dataset shape.
+std::vector<hsize_t> shape(hid_t dataset);
+/// Hyperslab I/O of doubles (start/count per dimension, data in C order).
+void write_block(hid_t dataset, const std::vector<hsize_t>& start,
+                 const std::vector<hsize_t>& count, const double* data);
+void read_block(hid_t dataset, const std::vector<hsize_t>& start,
+                const std::vector<hsize_t>& count, double* data);
+void write_block_u8(hid_t dataset, const std::vector<hsize_t>& start,
+                    const std::vector<hsize_t>& count, const std::uint8_t* data);
+
+std::vector<double> read_doubles(hid_t parent, const std::string& name);
+std::vector<std::int64_t> read_int64s(hid_t parent, const std::string& name);
+std::vector<std::uint8_t> read_u8s(hid_t parent, const std::string& name);
+std::vector<std::string> read_strings(hid_t parent, const std::string& name);
+
+// Attributes on any object.
+void set_attr(hid_t obj, const std::string& name, const std::string& value);
+void set_attr(hid_t obj, const std::string& name, std::int64_t value);
+void set_attr(hid_t obj, const std::string& name, double value);
+void set_attr(hid_t obj, const std::string& name, const std::vector<std::string>& values);
+bool has_attr(hid_t obj, const std::string& name);
+std::string get_attr_string(hid_t obj, const std::string& name);
+std::int64_t get_attr_int(hid_t obj, const std::string& name);
+double get_attr_double(hid_t obj, const std::string& name);
+
+/// Makes `scale` a dimension scale named `name` and attaches it to dimension
+/// `dim` of `dataset`, labelling that dimension with the same name.
+void make_scale(hid_t scale, const std::string& name);
+void attach_scale(hid_t dataset, hid_t scale, unsigned dim, const std::string& label);
+
+}  // namespace covergrid::output

@@ -1,0 +1,38 @@
+#pragma once
+/// Summary tables from a cube: CSV for machines, Markdown for people, and the
+/// headline text the terminal shows. Our own layout.
+#include "covergrid/output/cube.hpp"
+
+#include <string>
+#include <vector>
+
+namespace covergrid::output {
+
+/// One method's standing over the whole n range of a (model, side, level).
+struct RankingRow {
+  std::size_t model, side, level, method;
+  int rank = 0;
+  double worst_inf = 0;       // min over n of the continuous infimum
+  std::int64_t worst_inf_n = 0;
+  double mean_coverage = 0;   // mean over n of the exact uniform mean coverage
+  double rms_deviation = 0;   // mean over n of the grid RMS deviation from nominal
+  double share_below = 0;     // mean over n of the share of grid p below nominal
+  double mean_width = 0;      // mean over n of the grid mean width
+};
+
+/// Ranking per (model, side, level): methods ordered by mean RMS deviation of
+/// coverage from nominal (closest first); methods that do not define a side
+/// are left out.
+std::vector<RankingRow> ranking(const CubeReader& cube);
+
+/// Writes <prefix>-summary.csv, <prefix>-ranking.csv and <prefix>-summary.md
+/// (each to a temporary name, renamed when complete); returns their paths.
+std::vector<std::string> write_tables(const CubeReader& cube, const std::string& prefix);
+
+/// The headline: the ranking as an aligned text table, with the cautions.
+std::string headline(const CubeReader& cube);
+
+/// The cautions every report and table carries.
+extern const char* const coverage_caution;
+
+}  // namespace covergrid::output

@@ -1,0 +1,301 @@
+#include "covergrid/output/hdf5.hpp"
+
+#include <hdf5_hl.h>
+
+#include <cmath>
+#include <limits>
+
+namespace covergrid::output {
+
+void quiet_hdf5_errors() { H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr); }
+
+hid_t check_id(hid_t id, const std::string& what) {
+  if (id < 0) throw CubeError("HDF5: cannot " + what);
+  return id;
+}
+
+void check(herr_t status, const std::string& what) {
+  if (status < 0) throw CubeError("HDF5: cannot " + what);
+}
+
+File File::create(const std::string& path) {
+  quiet_hdf5_errors();
+  File f;
+  f.path_ = path;
+  // Freed file space is never reused, so metadata written at the last flush
+  // keeps pointing at intact bytes if a later write is cut short.
+  Handle fcpl(check_id(H5Pcreate(H5P_FILE_CREATE), "make a file-creation list"), H5Pclose);
+  check(H5Pset_file_space_strategy(fcpl.get(), H5F_FSPACE_STRATEGY_NONE, 0, 1),
+        "set the file-space strategy");
+  f.h_ = Handle(check_id(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, fcpl.get(), H5P_DEFAULT),
+                         "create " + path),
+                H5Fclose);
+  return f;
+}
+
+File File::open(const std::string& path, bool writable) {
+  quiet_hdf5_errors();
+  File f;
+  f.path_ = path;
+  f.h_ = Handle(check_id(H5Fopen(path.c_str(), writable ? H5F_ACC_RDWR : H5F_ACC_RDONLY, H5P_DEFAULT),
+                         "open " + path + " as an HDF5 file"),
+                H5Fclose);
+  return f;
+}
+
+void File::flush() const { check(H5Fflush(h_.get(), H5F_SCOPE_GLOBAL), "flush " + path_); }
+
+Handle create_group(hid_t parent, const std::string& name) {
+  return Handle(check_id(H5Gcreate2(parent, name.c_str(), H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT),
+                         "create group " + name),
+                H5Gclose);
+}
+
+Handle open_group(hid_t parent, const std::string& name) {
+  return Handle(check_id(H5Gopen2(parent, name.c_str(), H5P_DEFAULT), "open group " + name), H5Gclose);
+}
+
+bool exists(hid_t parent, const std::string& path) {
+  // Walk the path so that a missing intermediate group is "false", not an error.
+  std::string prefix;
+  std::size_t start = 0;
+  while (start <= path.size()) {
+    const std::size_t slash = path.find('/', start);
+    prefix = path.substr(0, slash);
+    if (!prefix.empty() && H5Lexists(parent, prefix.c_str(), H5P_DEFAULT) <= 0) return false;
+    if (slash == std::string::npos) break;
+    start = slash + 1;
+  }
+  return true;
+}
+
+Handle open_dataset(hid_t parent, const std::string& name) {
+  return Handle(check_id(H5Dopen2(parent, name.c_str(), H5P_DEFAULT), "open dataset " + name), H5Dclose);
+}
+
+Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
+                             const std::vector<hsize_t>& chunk) {
+  const int rank = static_cast<int>(dims.size());
+  Handle space(check_id(H5Screate_simple(rank, dims.data(), nullptr), "make a dataspace"), H5Sclose);
+  Handle dcpl(check_id(H5Pcreate(H5P_DATASET_CREATE), "make a dataset-creation list"), H5Pclose);
+  check(H5Pset_chunk(dcpl.get(), rank, chunk.data()), "set chunking for " + name);
+  check(H5Pset_shuffle(dcpl.get()), "set shuffle for " + name);
+  check(H5Pset_deflate(dcpl.get(), 4), "set compression for " + name);
+  const double fill = std::numeric_limits<double>::quiet_NaN();
+  check(H5Pset_fill_value(dcpl.get(), H5T_NATIVE_DOUBLE, &fill), "set the fill value of " + name);
+  check(H5Pset_fill_time(dcpl.get(), H5D_FILL_TIME_IFSET), "set the fill time of " + name);
+  return Handle(check_id(H5Dcreate2(parent, name.c_str(), H5T_IEEE_F64LE, space.get(), H5P_DEFAULT,
+                                    dcpl.get(), H5P_DEFAULT),
+                         "create dataset " + name),
+                H5Dclose);
+}
+
+namespace {
+
+template <class T>
+Handle write_plain(hid_t parent, const std::string& name, const std::vector<T>& v, hid_t file_type,
+                   hid_t mem_type) {
+  const hsize_t dims[1] = {v.size()};
+  Handle space(check_id(H5Screate_simple(1, dims, nullptr), "make a dataspace"), H5Sclose);
+  Handle d(check_id(H5Dcreate2(parent, name.c_str(), file_type, space.get(), H5P_DEFAULT, H5P_DEFAULT,
+                               H5P_DEFAULT),
+                    "create dataset " + name),
+           H5Dclose);
+  if (!v.empty()) check(H5Dwrite(d.get(), mem_type, H5S_ALL, H5S_ALL, H5P_DEFAULT, v.data()), "write " + name);
+  return d;
+}
+
+Handle utf8_string_type() {
+  Handle t(check_id(H5Tcopy(H5T_C_S1), "copy the string type"), H5Tclose);
+  check(H5Tset_size(t.get(), H5T_VARIABLE), "make a variable-length string type");
+  check(H5Tset_cset(t.get(), H5T_CSET_UTF8), "set UTF-8");
+  return t;
+}
+
+template <class T>
+std::vector<T> read_plain(hid_t parent, const std::string& name, hid_t mem_type) {
+  Handle d = open_dataset(parent, name);
+  const auto dims = shape(d.get());
+  if (dims.size() != 1) throw CubeError("dataset " + name + " is not one-dimensional");
+  std::vector<T> out(dims[0]);
+  if (!out.empty())
+    check(H5Dread(d.get(), mem_type, H5S_ALL, H5S_ALL, H5P_DEFAULT, out.data()), "read " + name);
+  return out;
+}
+
+}  // namespace
+
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<double>& v) {
+  return write_plain(parent, name, v, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE);
+}
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::int64_t>& v) {
+  return write_plain(parent, name, v, H5T_STD_I64LE, H5T_NATIVE_INT64);
+}
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::uint8_t>& v) {
+  return write_plain(parent, name, v, H5T_STD_U8LE, H5T_NATIVE_UINT8);
+}
+Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::string>& v) {
+  std::vector<const char*> ptrs;
+  for (const auto& s : v) ptrs.push_back(s.c_str());
+  Handle type = utf8_string_type();
+  return write_plain(parent, name, ptrs, type.get(), type.get());
+}
+
+std::vector<hsize_t> shape(hid_t dataset) {
+  Handle space(check_id(H5Dget_space(dataset), "get a dataspace"), H5Sclose);
+  const int rank = H5Sget_simple_extent_ndims(space.get());
+  if (rank < 0) throw CubeError("HDF5: cannot read a dataset's rank");
+  std::vector<hsize_t> dims(static_cast<std::size_t>(rank));
+  check(H5Sget_simple_extent_dims(space.get(), dims.data(), nullptr), "read a dataset's shape");
+  return dims;
+}
+
+namespace {
+void block_io(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+              hid_t mem_type, void* data, bool write) {
+  Handle file_space(check_id(H5Dget_space(dataset), "get a dataspace"), H5Sclose);
+  check(H5Sselect_hyperslab(file_space.get(), H5S_SELECT_SET, start.data(), nullptr, count.data(), nullptr),
+        "select a block");
+  Handle mem_space(check_id(H5Screate_simple(static_cast<int>(count.size()), count.data(), nullptr),
+                            "make a memory dataspace"),
+                   H5Sclose);
+  if (write)
+    check(H5Dwrite(dataset, mem_type, mem_space.get(), file_space.get(), H5P_DEFAULT, data), "write a block");
+  else
+    check(H5Dread(dataset, mem_type, mem_space.get(), file_space.get(), H5P_DEFAULT, data), "read a block");
+}
+}  // namespace
+
+void write_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                 const double* data) {
+  block_io(dataset, start, count, H5T_NATIVE_DOUBLE, const_cast<double*>(data), true);
+}
+void read_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                double* data) {
+  block_io(dataset, start, count, H5T_NATIVE_DOUBLE, data, false);
+}
+void write_block_u8(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                    const std::uint8_t* data) {
+  block_io(dataset, start, count, H5T_NATIVE_UINT8, const_cast<std::uint8_t*>(data), true);
+}
+
+std::vector<double> read_doubles(hid_t parent, const std::string& name) {
+  return read_plain<double>(parent, name, H5T_NATIVE_DOUBLE);
+}
+std::vector<std::int64_t> read_int64s(hid_t parent, const std::string& name) {
+  return read_plain<std::int64_t>(parent, name, H5T_NATIVE_INT64);
+}
+std::vector<std::uint8_t> read_u8s(hid_t parent, const std::string& name) {
+  return read_plain<std::uint8_t>(parent, name, H5T_NATIVE_UINT8);
+}
+std::vector<std::string> read_strings(hid_t parent, const std::string& name) {
+  Handle d = open_dataset(parent, name);
+  const auto dims = shape(d.get());
+  if (dims.size() != 1) throw CubeError("dataset " + name + " is not one-dimensional");
+  Handle type = utf8_string_type();
+  std::vector<char*> raw(dims[0], nullptr);
+  if (!raw.empty())
+    check(H5Dread(d.get(), type.get(), H5S_ALL, H5S_ALL, H5P_DEFAULT, raw.data()), "read " + name);
+  std::vector<std::string> out;
+  for (char* s : raw) out.emplace_back(s ? s : "");
+  if (!raw.empty()) {
+    Handle space(check_id(H5Dget_space(d.get()), "get a dataspace"), H5Sclose);
+    H5Dvlen_reclaim(type.get(), space.get(), H5P_DEFAULT, raw.data());
+  }
+  return out;
+}
+
+namespace {
+Handle scalar_space() { return Handle(check_id(H5Screate(H5S_SCALAR), "make a scalar dataspace"), H5Sclose); }
+
+void replace_attr(hid_t obj, const std::string& name) {
+  if (H5Aexists(obj, name.c_str()) > 0) check(H5Adelete(obj, name.c_str()), "replace attribute " + name);
+}
+}  // namespace
+
+void set_attr(hid_t obj, const std::string& name, const std::string& value) {
+  replace_attr(obj, name);
+  Handle type = utf8_string_type();
+  Handle space = scalar_space();
+  Handle a(check_id(H5Acreate2(obj, name.c_str(), type.get(), space.get(), H5P_DEFAULT, H5P_DEFAULT),
+                    "create attribute " + name),
+           H5Aclose);
+  const char* p = value.c_str();
+  check(H5Awrite(a.get(), type.get(), &p), "write attribute " + name);
+}
+
+void set_attr(hid_t obj, const std::string& name, std::int64_t value) {
+  replace_attr(obj, name);
+  Handle space = scalar_space();
+  Handle a(check_id(H5Acreate2(obj, name.c_str(), H5T_STD_I64LE, space.get(), H5P_DEFAULT, H5P_DEFAULT),
+                    "create attribute " + name),
+           H5Aclose);
+  check(H5Awrite(a.get(), H5T_NATIVE_INT64, &value), "write attribute " + name);
+}
+
+void set_attr(hid_t obj, const std::string& name, double value) {
+  replace_attr(obj, name);
+  Handle space = scalar_space();
+  Handle a(check_id(H5Acreate2(obj, name.c_str(), H5T_IEEE_F64LE, space.get(), H5P_DEFAULT, H5P_DEFAULT),
+                    "create attribute " + name),
+           H5Aclose);
+  check(H5Awrite(a.get(), H5T_NATIVE_DOUBLE, &value), "write attribute " + name);
+}
+
+void set_attr(hid_t obj, const std::string& name, const std::vector<std::string>& values) {
+  replace_attr(obj, name);
+  Handle type = utf8_string_type();
+  const hsize_t dims[1] = {values.size()};
+  Handle space(check_id(H5Screate_simple(1, dims, nullptr), "make a dataspace"), H5Sclose);
+  Handle a(check_id(H5Acreate2(obj, name.c_str(), type.get(), space.get(), H5P_DEFAULT, H5P_DEFAULT),
+                    "create attribute " + name),
+           H5Aclose);
+  std::vector<const char*> ptrs;
+  for (const auto& s : values) ptrs.push_back(s.c_str());
+  check(H5Awrite(a.get(), type.get(), ptrs.data()), "write attribute " + name);
+}
+
+bool has_attr(hid_t obj, const std::string& name) { return H5Aexists(obj, name.c_str()) > 0; }
+
+std::string get_attr_string(hid_t obj, const std::string& name) {
+  Handle a(check_id(H5Aopen(obj, name.c_str(), H5P_DEFAULT), "open attribute " + name), H5Aclose);
+  Handle ftype(check_id(H5Aget_type(a.get()), "get the type of attribute " + name), H5Tclose);
+  if (H5Tget_class(ftype.get()) != H5T_STRING) throw CubeError("attribute " + name + " is not a string");
+  if (H5Tis_variable_str(ftype.get()) > 0) {
+    Handle type = utf8_string_type();
+    char* p = nullptr;
+    check(H5Aread(a.get(), type.get(), &p), "read attribute " + name);
+    std::string out = p ? p : "";
+    H5free_memory(p);
+    return out;
+  }
+  const std::size_t size = H5Tget_size(ftype.get());
+  std::string out(size, '\0');
+  check(H5Aread(a.get(), ftype.get(), out.data()), "read attribute " + name);
+  return out.substr(0, out.find('\0'));
+}
+
+std::int64_t get_attr_int(hid_t obj, const std::string& name) {
+  Handle a(check_id(H5Aopen(obj, name.c_str(), H5P_DEFAULT), "open attribute " + name), H5Aclose);
+  std::int64_t v = 0;
+  check(H5Aread(a.get(), H5T_NATIVE_INT64, &v), "read attribute " + name);
+  return v;
+}
+
+double get_attr_double(hid_t obj, const std::string& name) {
+  Handle a(check_id(H5Aopen(obj, name.c_str(), H5P_DEFAULT), "open attribute " + name), H5Aclose);
+  double v = 0;
+  check(H5Aread(a.get(), H5T_NATIVE_DOUBLE, &v), "read attribute " + name);
+  return v;
+}
+
+void make_scale(hid_t scale, const std::string& name) {
+  check(H5DSset_scale(scale, name.c_str()), "make " + name + " a dimension scale");
+}
+
+void attach_scale(hid_t dataset, hid_t scale, unsigned dim, const std::string& label) {
+  check(H5DSattach_scale(dataset, scale, dim), "attach scale " + label);
+  check(H5DSset_label(dataset, dim, label.c_str()), "label dimension " + label);
+}
+
+}  // namespace covergrid::output

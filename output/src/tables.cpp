@@ -1,0 +1,198 @@
+#include "covergrid/output/tables.hpp"
+
+#include "covergrid/engine/error.hpp"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <limits>
+
+namespace covergrid::output {
+
+namespace fs = std::filesystem;
+
+const char* const coverage_caution =
+    "Coverage is a long-run property of a procedure: the share of intervals, over repeated "
+    "samples at a fixed true p, that contain p. It says nothing about whether one computed "
+    "interval contains the truth. A method choice for regulated or clinical work follows the "
+    "applicable guidance and a qualified statistician's review.";
+
+namespace {
+
+constexpr double nan = std::numeric_limits<double>::quiet_NaN();
+
+std::string num(double v, int digits = 6) {
+  if (std::isnan(v)) return "";
+  return fmt::format("{:.{}g}", v, digits);
+}
+
+std::string pct(double v) {
+  if (std::isnan(v)) return "-";
+  return fmt::format("{:.2f}", 100 * v);
+}
+
+void write_atomically(const std::string& path, const std::string& text) {
+  const fs::path parent = fs::path(path).parent_path();
+  if (!parent.empty() && !fs::is_directory(parent))
+    throw InputError(path, "its folder " + parent.string() + " does not exist");
+  const std::string temp = path + ".partial";
+  {
+    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
+    if (!out) throw InputError(temp, "cannot write");
+    out << text;
+    if (!out.flush()) throw InputError(temp, "cannot write");
+  }
+  std::error_code ec;
+  fs::rename(temp, path, ec);
+  if (ec) throw InputError(path, "cannot rename the finished file into place: " + ec.message());
+}
+
+}  // namespace
+
+std::vector<RankingRow> ranking(const CubeReader& cube) {
+  const auto inf = cube.summary("inf_coverage");
+  const auto cont = cube.summary("mean_coverage_continuous");
+  const auto rms = cube.summary("rms_deviation");
+  const auto below = cube.summary("share_below");
+  const auto width = cube.summary("mean_width");
+  std::vector<RankingRow> out;
+  for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
+    for (std::size_t s = 0; s < cube.sides.size(); ++s)
+      for (std::size_t l = 0; l < cube.levels.size(); ++l) {
+        std::vector<RankingRow> group;
+        for (std::size_t m = 0; m < cube.methods.size(); ++m) {
+          RankingRow r{mo, s, l, m};
+          r.worst_inf = std::numeric_limits<double>::infinity();
+          double k = 0;
+          bool defined = true;
+          for (std::size_t i = 0; i < cube.n.size(); ++i) {
+            const std::size_t at = cube.summary_index(mo, s, l, m, i);
+            if (std::isnan(inf[at])) {
+              defined = false;
+              break;
+            }
+            if (inf[at] < r.worst_inf) {
+              r.worst_inf = inf[at];
+              r.worst_inf_n = cube.n[i];
+            }
+            r.mean_coverage += cont[at];
+            r.rms_deviation += rms[at];
+            r.share_below += below[at];
+            r.mean_width += width[at];
+            ++k;
+          }
+          if (!defined || k == 0) continue;
+          r.mean_coverage /= k;
+          r.rms_deviation /= k;
+          r.share_below /= k;
+          r.mean_width /= k;
+          group.push_back(r);
+        }
+        std::stable_sort(group.begin(), group.end(), [](const RankingRow& a, const RankingRow& b) {
+          return a.rms_deviation < b.rms_deviation;
+        });
+        for (std::size_t i = 0; i < group.size(); ++i) group[i].rank = static_cast<int>(i) + 1;
+        out.insert(out.end(), group.begin(), group.end());
+      }
+  return out;
+}
+
+std::vector<std::string> write_tables(const CubeReader& cube, const std::string& prefix) {
+  static const char* stats[] = {"mean_coverage", "min_coverage", "min_coverage_p", "inf_coverage",
+                                "inf_coverage_p", "inf_coverage_from", "mean_coverage_continuous",
+                                "rms_deviation", "share_below", "mean_width", "mean_miss_low",
+                                "mean_miss_high"};
+  std::vector<std::vector<double>> values;
+  for (const char* s : stats) values.push_back(cube.summary(s));
+
+  std::string csv = "model,side,level,method,n";
+  for (const char* s : stats) csv += fmt::format(",{}", s);
+  csv += '\n';
+  for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
+    for (std::size_t s = 0; s < cube.sides.size(); ++s)
+      for (std::size_t l = 0; l < cube.levels.size(); ++l)
+        for (std::size_t m = 0; m < cube.methods.size(); ++m)
+          for (std::size_t i = 0; i < cube.n.size(); ++i) {
+            const std::size_t at = cube.summary_index(mo, s, l, m, i);
+            if (std::isnan(values[3][at])) continue;  // side not defined by the method
+            csv += fmt::format("{},{},{},\"{}\",{}", cube.models[mo], cube.sides[s], cube.levels[l],
+                               cube.methods[m], cube.n[i]);
+            for (const auto& v : values) {
+              csv += ',';
+              csv += num(v[at], 10);
+            }
+            csv += '\n';
+          }
+
+  const auto rank = ranking(cube);
+  std::string rcsv = "model,side,level,rank,method,worst_inf_coverage,worst_at_n,mean_coverage_continuous,"
+                     "mean_rms_deviation,mean_share_below,mean_width\n";
+  for (const auto& r : rank)
+    rcsv += fmt::format("{},{},{},{},\"{}\",{},{},{},{},{},{}\n", cube.models[r.model], cube.sides[r.side],
+                        cube.levels[r.level], r.rank, cube.methods[r.method], num(r.worst_inf, 10),
+                        r.worst_inf_n, num(r.mean_coverage, 10), num(r.rms_deviation, 10),
+                        num(r.share_below, 10), num(r.mean_width, 10));
+
+  std::string md = fmt::format("# {}\n\n", cube.attr("title").empty() ? "covergrid results" : cube.attr("title"));
+  md += fmt::format("Cube `{}`, scenario checksum `{}`, covergrid {}.\n\n", fs::path(cube.path()).filename().string(),
+                    cube.attr("scenario_sha256").substr(0, 16), cube.attr("tool_version"));
+  md += fmt::format("p range [{}, {}] ({} grid points), n from {} to {} ({} values). "
+                    "Coverage figures are exact (binomial enumeration).\n\n",
+                    cube.p.front(), cube.p.back(), cube.p.size(), cube.n.front(), cube.n.back(), cube.n.size());
+  md += std::string("> ") + coverage_caution + "\n\n";
+  md += "## Standing of the methods over the whole n range\n\n"
+        "Ordered by the mean over n of the RMS deviation of grid coverage from nominal (closest first). "
+        "*Worst* is the smallest exact infimum of coverage over the continuous p range, at any n.\n";
+  for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
+    for (std::size_t s = 0; s < cube.sides.size(); ++s)
+      for (std::size_t l = 0; l < cube.levels.size(); ++l) {
+        md += fmt::format("\n### {} model, {}, nominal {}%\n\n", cube.models[mo], cube.sides[s],
+                          num(100 * cube.levels[l]));
+        md += "| # | method | worst (%) | at n | mean coverage (%) | RMS dev. (pts) | p below nominal (%) | mean width |\n"
+              "|---:|---|---:|---:|---:|---:|---:|---:|\n";
+        for (const auto& r : rank)
+          if (r.model == mo && r.side == s && r.level == l)
+            md += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} |\n", r.rank, cube.methods[r.method],
+                              pct(r.worst_inf), r.worst_inf_n, pct(r.mean_coverage), pct(r.rms_deviation),
+                              pct(r.share_below), num(r.mean_width, 4));
+      }
+  md += "\nPer-n figures are in the CSV summary beside this file.\n";
+
+  std::vector<std::string> paths = {prefix + "-summary.csv", prefix + "-ranking.csv", prefix + "-summary.md"};
+  write_atomically(paths[0], csv);
+  write_atomically(paths[1], rcsv);
+  write_atomically(paths[2], md);
+  return paths;
+}
+
+std::string headline(const CubeReader& cube) {
+  const auto rank = ranking(cube);
+  std::size_t width = 6;
+  for (const auto& m : cube.methods) width = std::max(width, m.size());
+  std::string out;
+  for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
+    for (std::size_t s = 0; s < cube.sides.size(); ++s)
+      for (std::size_t l = 0; l < cube.levels.size(); ++l) {
+        out += fmt::format("\n{} model, {}, nominal {}%, n {}..{}, p {}..{}\n", cube.models[mo], cube.sides[s],
+                           num(100 * cube.levels[l]), cube.n.front(), cube.n.back(), cube.p.front(),
+                           cube.p.back());
+        out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9}\n", "#", "method", width,
+                           "worst %", "at n", "mean %", "RMS pts", "below %", "width");
+        for (const auto& r : rank)
+          if (r.model == mo && r.side == s && r.level == l)
+            out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9.4f}\n", r.rank,
+                               cube.methods[r.method], width, pct(r.worst_inf), r.worst_inf_n,
+                               pct(r.mean_coverage), pct(r.rms_deviation), pct(r.share_below), r.mean_width);
+      }
+  out += "\nworst = smallest exact coverage infimum over the continuous p range at any n;\n"
+         "mean = exact mean coverage over that range (uniform p), averaged over n;\n"
+         "RMS = root-mean-square deviation of grid coverage from nominal, in percentage points.\n\n";
+  out += coverage_caution;
+  out += '\n';
+  return out;
+}
+
+}  // namespace covergrid::output

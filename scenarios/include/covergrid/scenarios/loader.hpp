@@ -1,0 +1,27 @@
+#pragma once
+/// The scenario loader: TOML text in, validated plain engine::Scenario out.
+/// Nothing else in covergrid reads TOML. Every error is an InputError whose
+/// message names the file, the line and the key ("demo.toml:14: [grid] p.to =
+/// 1.2 is outside [0, 1]").
+#include "covergrid/engine/scenario.hpp"
+
+#include <string>
+#include <string_view>
+
+namespace covergrid::scenarios {
+
+/// Reads and validates a scenario file; output paths resolve against its folder.
+engine::Scenario load_scenario_file(const std::string& path);
+
+/// Validates scenario text; `source_name` is used in messages and `base_dir`
+/// to resolve relative output paths ("" = current directory).
+engine::Scenario load_scenario_text(std::string_view text, const std::string& source_name,
+                                    const std::string& base_dir);
+
+/// The bundled demo scenario (scenarios/bundled/demo.toml, compiled in).
+std::string_view bundled_demo_text();
+
+/// Largest sample size a scenario may ask for.
+inline constexpr int max_sample_size = 10'000'000;
+
+}  // namespace covergrid::scenarios

@@ -1,0 +1,393 @@
+#include "covergrid/scenarios/loader.hpp"
+
+#include "covergrid/engine/error.hpp"
+#include "covergrid/engine/sha256.hpp"
+
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
+#include <algorithm>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <set>
+#include <sstream>
+
+namespace covergrid::scenarios {
+
+namespace {
+
+using engine::Scenario;
+namespace fs = std::filesystem;
+
+/// Formats errors as "file:line: [table] key ...".
+class Context {
+ public:
+  explicit Context(std::string source) : source_(std::move(source)) {}
+  [[noreturn]] void fail(const toml::node* node, const std::string& message) const {
+    throw InputError(where(node), message);
+  }
+  [[noreturn]] void fail_line(std::size_t line, const std::string& message) const {
+    throw InputError(fmt::format("{}:{}", source_, line), message);
+  }
+  std::string where(const toml::node* node) const {
+    if (node && node->source().begin.line > 0)
+      return fmt::format("{}:{}", source_, node->source().begin.line);
+    return source_;
+  }
+
+ private:
+  std::string source_;
+};
+
+std::string value_text(const toml::node& node) {
+  if (auto s = node.value_exact<std::string>()) return '"' + *s + '"';
+  if (auto i = node.value_exact<std::int64_t>()) return std::to_string(*i);
+  if (auto d = node.value_exact<double>()) return fmt::format("{}", *d);
+  if (auto b = node.value_exact<bool>()) return *b ? "true" : "false";
+  if (node.is_table()) return "{...}";
+  if (node.is_array()) return "[...]";
+  return "(a date or time)";
+}
+
+std::string type_name(const toml::node& node) {
+  switch (node.type()) {
+    case toml::node_type::string: return "a string";
+    case toml::node_type::integer: return "an integer";
+    case toml::node_type::floating_point: return "a number";
+    case toml::node_type::boolean: return "a boolean";
+    case toml::node_type::array: return "an array";
+    case toml::node_type::table: return "a table";
+    default: return "a date or time";
+  }
+}
+
+void reject_unknown(const Context& ctx, const toml::table& table, const std::string& where,
+                    std::initializer_list<std::string_view> allowed) {
+  for (const auto& [key, node] : table) {
+    if (std::find(allowed.begin(), allowed.end(), key.str()) != allowed.end()) continue;
+    std::string list;
+    for (auto a : allowed) list += (list.empty() ? "" : ", ") + std::string(a);
+    ctx.fail(&node, fmt::format("{}unknown key '{}' (allowed here: {})", where, key.str(), list));
+  }
+}
+
+double number_of(const Context& ctx, const toml::node& node, const std::string& what) {
+  if (auto i = node.value_exact<std::int64_t>()) return static_cast<double>(*i);
+  if (auto d = node.value_exact<double>()) return *d;
+  ctx.fail(&node, fmt::format("{} must be a number, not {}", what, type_name(node)));
+}
+
+std::int64_t integer_of(const Context& ctx, const toml::node& node, const std::string& what) {
+  if (auto i = node.value_exact<std::int64_t>()) return *i;
+  ctx.fail(&node, fmt::format("{} must be an integer, not {}", what, type_name(node)));
+}
+
+std::string string_of(const Context& ctx, const toml::node& node, const std::string& what) {
+  if (auto s = node.value_exact<std::string>()) return *s;
+  ctx.fail(&node, fmt::format("{} must be a string, not {}", what, type_name(node)));
+}
+
+bool bool_of(const Context& ctx, const toml::node& node, const std::string& what) {
+  if (auto b = node.value_exact<bool>()) return *b;
+  ctx.fail(&node, fmt::format("{} must be true or false, not {}", what, type_name(node)));
+}
+
+/// A value list, range with step, or count-spaced range. `kind` is "n" or "p".
+std::vector<double> axis_values(const Context& ctx, const toml::node& node, const std::string& key,
+                                bool integer) {
+  const std::string what = "[grid] " + key;
+  std::vector<double> out;
+  auto check = [&](const toml::node& n, double v, const std::string& name) {
+    if (integer) {
+      if (!n.is_integer()) ctx.fail(&n, fmt::format("{} must be an integer, not {}", name, value_text(n)));
+      if (v < 1) ctx.fail(&n, fmt::format("{} = {} is below 1", name, value_text(n)));
+      if (v > max_sample_size)
+        ctx.fail(&n, fmt::format("{} = {} is above the largest supported n ({})", name, value_text(n),
+                                 max_sample_size));
+    } else if (!(v >= 0.0 && v <= 1.0)) {
+      ctx.fail(&n, fmt::format("{} = {} is outside [0, 1]", name, value_text(n)));
+    }
+  };
+  if (node.is_array()) {
+    const auto& arr = *node.as_array();
+    if (arr.empty()) ctx.fail(&node, what + " is an empty list");
+    for (const auto& item : arr) {
+      const double v = number_of(ctx, item, what + " entries");
+      check(item, v, what + " entry");
+      out.push_back(v);
+    }
+  } else if (node.is_table()) {
+    const auto& t = *node.as_table();
+    reject_unknown(ctx, t, what + ": ", {"from", "to", "step", "count", "spacing"});
+    const toml::node* from = t.get("from");
+    const toml::node* to = t.get("to");
+    if (!from) ctx.fail(&node, what + " needs 'from'");
+    if (!to) ctx.fail(&node, what + " needs 'to'");
+    const double a = number_of(ctx, *from, what + ".from");
+    const double b = number_of(ctx, *to, what + ".to");
+    check(*from, a, what + ".from");
+    check(*to, b, what + ".to");
+    if (b < a) ctx.fail(to, fmt::format("{}.to = {} is below {}.from = {}", what, value_text(*to), what, value_text(*from)));
+    const toml::node* step = t.get("step");
+    const toml::node* count = t.get("count");
+    const toml::node* spacing = t.get("spacing");
+    if (step && count) ctx.fail(step, what + " takes 'step' or 'count', not both");
+    std::string space = spacing ? string_of(ctx, *spacing, what + ".spacing") : "linear";
+    const std::vector<std::string> allowed = integer ? std::vector<std::string>{"linear", "log"}
+                                                     : std::vector<std::string>{"linear", "logit"};
+    if (std::find(allowed.begin(), allowed.end(), space) == allowed.end())
+      ctx.fail(spacing, fmt::format("{}.spacing = \"{}\" is not one of \"{}\", \"{}\"", what, space,
+                                    allowed[0], allowed[1]));
+    if (step) {
+      if (spacing && space != "linear") ctx.fail(spacing, what + ": 'step' goes with linear spacing only");
+      const double s = integer ? static_cast<double>(integer_of(ctx, *step, what + ".step"))
+                               : number_of(ctx, *step, what + ".step");
+      if (!(s > 0)) ctx.fail(step, fmt::format("{}.step = {} must be positive", what, value_text(*step)));
+      const double steps = std::floor((b - a) / s + 1e-9);
+      if (steps > 1e7) ctx.fail(step, fmt::format("{}.step = {} gives more than 10^7 points", what, value_text(*step)));
+      for (double i = 0; i <= steps; ++i) out.push_back(integer ? a + i * s : std::min(b, a + i * s));
+    } else {
+      if (!count) {
+        if (!integer) ctx.fail(&node, what + " needs 'count' or 'step'");
+        for (double v = a; v <= b; ++v) out.push_back(v);
+      } else {
+        const std::int64_t k = integer_of(ctx, *count, what + ".count");
+        if (k < 1) ctx.fail(count, fmt::format("{}.count = {} must be at least 1", what, k));
+        if (k > 10'000'000) ctx.fail(count, fmt::format("{}.count = {} is above 10^7", what, k));
+        if (space == "logit" && (a <= 0 || b >= 1))
+          ctx.fail(spacing, what + ": logit spacing needs 0 < from and to < 1");
+        for (std::int64_t i = 0; i < k; ++i) {
+          const double u = k == 1 ? 0.0 : static_cast<double>(i) / static_cast<double>(k - 1);
+          double v = 0;
+          if (space == "log") v = std::round(std::exp(std::log(a) + u * (std::log(b) - std::log(a))));
+          else if (space == "logit") {
+            const double la = std::log(a / (1 - a)), lb = std::log(b / (1 - b));
+            const double l = la + u * (lb - la);
+            v = 1 / (1 + std::exp(-l));
+            if (i == 0) v = a;
+            if (i == k - 1) v = b;
+          } else {
+            v = integer ? std::round(a + u * (b - a)) : (i == k - 1 ? b : a + u * (b - a));
+          }
+          out.push_back(v);
+        }
+      }
+    }
+  } else {
+    const double v = number_of(ctx, node, what);
+    check(node, v, what);
+    out.push_back(v);
+  }
+  std::sort(out.begin(), out.end());
+  if (node.is_array()) {
+    const auto dup = std::adjacent_find(out.begin(), out.end());
+    if (dup != out.end()) ctx.fail(&node, fmt::format("{} lists the value {} twice", what, *dup));
+  }
+  out.erase(std::unique(out.begin(), out.end()), out.end());  // log-spaced n may repeat
+  return out;
+}
+
+methods::ParamValue param_of(const Context& ctx, const toml::node& node, const std::string& what) {
+  if (auto b = node.value_exact<bool>()) return *b;
+  if (auto i = node.value_exact<std::int64_t>()) return static_cast<double>(*i);
+  if (auto d = node.value_exact<double>()) return *d;
+  if (auto s = node.value_exact<std::string>()) return *s;
+  ctx.fail(&node, fmt::format("{} must be a boolean, number or string, not {}", what, type_name(node)));
+}
+
+}  // namespace
+
+engine::Scenario load_scenario_text(std::string_view text, const std::string& source_name,
+                                    const std::string& base_dir) {
+  const Context ctx(source_name);
+  toml::table root;
+  try {
+    root = toml::parse(text, source_name);
+  } catch (const toml::parse_error& e) {
+    ctx.fail_line(e.source().begin.line, fmt::format("TOML syntax error: {}", e.description()));
+  }
+  Scenario s;
+  s.source_name = source_name;
+  s.source_text = std::string(text);
+  s.sha256 = engine::sha256_hex(text);
+  reject_unknown(ctx, root, "", {"title", "seed", "grid", "evaluate", "method", "model", "output"});
+
+  if (const auto* t = root.get("title")) s.title = string_of(ctx, *t, "title");
+  if (const auto* seed = root.get("seed")) {
+    const std::int64_t v = integer_of(ctx, *seed, "seed");
+    if (v < 0) ctx.fail(seed, fmt::format("seed = {} must not be negative", v));
+    s.seed = static_cast<std::uint64_t>(v);
+  }
+
+  // [grid]
+  const toml::node* grid_node = root.get("grid");
+  if (!grid_node) ctx.fail(nullptr, "missing [grid] table (it needs n, p and levels)");
+  if (!grid_node->is_table()) ctx.fail(grid_node, "grid must be a table, [grid]");
+  const auto& grid = *grid_node->as_table();
+  reject_unknown(ctx, grid, "[grid] ", {"n", "p", "levels", "sides"});
+  const toml::node* n_node = grid.get("n");
+  const toml::node* p_node = grid.get("p");
+  const toml::node* level_node = grid.get("levels");
+  if (!n_node) ctx.fail(grid_node, "[grid] needs 'n'");
+  if (!p_node) ctx.fail(grid_node, "[grid] needs 'p'");
+  if (!level_node) ctx.fail(grid_node, "[grid] needs 'levels'");
+  for (double v : axis_values(ctx, *n_node, "n", true)) s.n.push_back(static_cast<int>(v));
+  s.p = axis_values(ctx, *p_node, "p", false);
+  {
+    std::vector<const toml::node*> items;
+    if (level_node->is_array()) for (const auto& i : *level_node->as_array()) items.push_back(&i);
+    else items.push_back(level_node);
+    if (items.empty()) ctx.fail(level_node, "[grid] levels is an empty list");
+    for (const auto* i : items) {
+      const double v = number_of(ctx, *i, "[grid] levels entries");
+      if (!(v > 0 && v < 1)) ctx.fail(i, fmt::format("[grid] levels entry {} is outside (0, 1)", value_text(*i)));
+      if (std::find(s.levels.begin(), s.levels.end(), v) != s.levels.end())
+        ctx.fail(i, fmt::format("[grid] levels lists {} twice", value_text(*i)));
+      s.levels.push_back(v);
+    }
+    std::sort(s.levels.begin(), s.levels.end());
+  }
+  if (const toml::node* sides = grid.get("sides")) {
+    std::vector<const toml::node*> items;
+    if (sides->is_array()) for (const auto& i : *sides->as_array()) items.push_back(&i);
+    else items.push_back(sides);
+    if (items.empty()) ctx.fail(sides, "[grid] sides is an empty list");
+    for (const auto* i : items) {
+      const std::string name = string_of(ctx, *i, "[grid] sides entries");
+      methods::Side side{};
+      if (!methods::parse_side(name, side))
+        ctx.fail(i, fmt::format("[grid] sides entry \"{}\" is not one of \"two-sided\", \"lower-bound\", \"upper-bound\"", name));
+      if (std::find(s.sides.begin(), s.sides.end(), side) != s.sides.end())
+        ctx.fail(i, fmt::format("[grid] sides lists \"{}\" twice", name));
+      s.sides.push_back(side);
+    }
+    std::sort(s.sides.begin(), s.sides.end());
+  } else {
+    s.sides = {methods::Side::two_sided};
+  }
+
+  // [evaluate]
+  if (const toml::node* ev_node = root.get("evaluate")) {
+    if (!ev_node->is_table()) ctx.fail(ev_node, "evaluate must be a table, [evaluate]");
+    const auto& ev = *ev_node->as_table();
+    reject_unknown(ctx, ev, "[evaluate] ", {"exact", "replicates"});
+    if (const auto* e = ev.get("exact")) s.exact = bool_of(ctx, *e, "[evaluate] exact");
+    if (const auto* r = ev.get("replicates")) {
+      const std::int64_t v = integer_of(ctx, *r, "[evaluate] replicates");
+      if (v < 0) ctx.fail(r, fmt::format("[evaluate] replicates = {} must not be negative", v));
+      if (v > 0)
+        ctx.fail(r, "[evaluate] replicates > 0: Monte Carlo evaluation is not available in this "
+                    "version yet; set replicates = 0");
+      s.replicates = static_cast<std::uint64_t>(v);
+    }
+    if (!s.exact && s.replicates == 0)
+      ctx.fail(ev_node, "[evaluate] turns exact evaluation off and has no replicates: nothing to compute");
+  }
+
+  // [[method]]
+  const toml::node* m_node = root.get("method");
+  if (!m_node) ctx.fail(nullptr, "no [[method]] entries: name at least one interval method");
+  if (!m_node->is_array_of_tables()) ctx.fail(m_node, "method must be an array of tables, [[method]]");
+  std::set<std::string> labels;
+  for (const auto& item : *m_node->as_array()) {
+    const auto& t = *item.as_table();
+    const toml::node* id_node = t.get("id");
+    if (!id_node) ctx.fail(&item, "[[method]] needs 'id'");
+    const std::string id = string_of(ctx, *id_node, "[[method]] id");
+    const methods::MethodEntry* entry = methods::find_method(id);
+    if (!entry) {
+      std::string ids;
+      for (const auto& e : methods::registry()) ids += (ids.empty() ? "" : ", ") + e.info.id;
+      ctx.fail(id_node, fmt::format("[[method]] id = \"{}\" is not a known method (known: {})", id, ids));
+    }
+    methods::ParamValues given;
+    std::string label;
+    const toml::node* label_node = t.get("label");
+    if (label_node) {
+      label = string_of(ctx, *label_node, "[[method]] label");
+      if (label.empty() || label.find_first_of("/\"\n") != std::string::npos)
+        ctx.fail(label_node, "[[method]] label must be non-empty without '/', '\"' or newlines");
+    }
+    for (const auto& [key, node] : t) {
+      if (key.str() == "id" || key.str() == "label") continue;
+      given[std::string(key.str())] = param_of(ctx, node, fmt::format("[[method]] {}.{}", id, key.str()));
+    }
+    methods::MethodInstance inst;
+    try {
+      inst = methods::make_instance(id, given, label);
+    } catch (const methods::ParameterError& e) {
+      const toml::node* at = t.get(e.key());
+      ctx.fail(at ? at : &item, fmt::format("[[method]] {}", e.what()));
+    }
+    if (!labels.insert(inst.label).second)
+      ctx.fail(&item, fmt::format("[[method]] label \"{}\" is used twice; give one a 'label'", inst.label));
+    bool any_side = false;
+    for (auto side : s.sides) any_side |= inst.method->supports(side);
+    if (!any_side)
+      ctx.fail(id_node, fmt::format("[[method]] {} supports none of the scenario's sides", id));
+    s.methods.push_back(std::move(inst));
+  }
+  if (s.methods.empty()) ctx.fail(m_node, "no [[method]] entries");
+
+  // [[model]]
+  if (const toml::node* models = root.get("model")) {
+    if (!models->is_array_of_tables()) ctx.fail(models, "model must be an array of tables, [[model]]");
+    std::set<std::string> model_labels;
+    for (const auto& item : *models->as_array()) {
+      const auto& t = *item.as_table();
+      reject_unknown(ctx, t, "[[model]] ", {"kind", "label"});
+      const toml::node* kind = t.get("kind");
+      if (!kind) ctx.fail(&item, "[[model]] needs 'kind'");
+      const std::string k = string_of(ctx, *kind, "[[model]] kind");
+      engine::ModelSpec spec;
+      if (k == "binomial") spec.kind = engine::ModelKind::binomial;
+      else if (k == "hypergeometric" || k == "beta-binomial")
+        ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not available in this version yet "
+                                   "(available: \"binomial\")", k));
+      else ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: \"binomial\")", k));
+      spec.label = k;
+      if (const auto* l = t.get("label")) spec.label = string_of(ctx, *l, "[[model]] label");
+      if (!model_labels.insert(spec.label).second)
+        ctx.fail(&item, fmt::format("[[model]] label \"{}\" is used twice", spec.label));
+      s.models.push_back(spec);
+    }
+  } else {
+    s.models.push_back({});
+  }
+
+  // [output]
+  std::string stem = fs::path(source_name).stem().string();
+  if (stem.empty() || stem.front() == '<') stem = "covergrid";
+  std::string cube = stem + ".h5", tables = stem;
+  if (const toml::node* out_node = root.get("output")) {
+    if (!out_node->is_table()) ctx.fail(out_node, "output must be a table, [output]");
+    const auto& out = *out_node->as_table();
+    reject_unknown(ctx, out, "[output] ", {"cube", "tables"});
+    if (const auto* c = out.get("cube")) {
+      cube = string_of(ctx, *c, "[output] cube");
+      if (cube.empty()) ctx.fail(c, "[output] cube must not be empty");
+    }
+    if (const auto* tb = out.get("tables")) tables = string_of(ctx, *tb, "[output] tables");
+  }
+  auto resolve = [&](const std::string& path) {
+    if (path.empty()) return path;
+    const fs::path p(path);
+    if (p.is_absolute() || base_dir.empty()) return p.lexically_normal().string();
+    return (fs::path(base_dir) / p).lexically_normal().string();
+  };
+  s.cube_path = resolve(cube);
+  s.tables_prefix = resolve(tables);
+  return s;
+}
+
+engine::Scenario load_scenario_file(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw InputError(path, "cannot open the scenario file");
+  std::stringstream buffer;
+  buffer << in.rdbuf();
+  const fs::path p(path);
+  return load_scenario_text(buffer.str(), path, p.parent_path().string());
+}
+
+}  // namespace covergrid::scenarios
