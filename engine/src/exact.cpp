@@ -13,7 +13,7 @@ namespace covergrid::engine {
 namespace {
 constexpr double nan = std::numeric_limits<double>::quiet_NaN();
 constexpr double endpoint_merge_tolerance = 1e-12;
-}
+}  // namespace
 
 CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& window, double p) {
   CellMetrics m;
@@ -91,7 +91,10 @@ class CoveredSet {
  private:
   void toggle(int position) {
     const auto it = boundaries_.find(position);
-    if (it == boundaries_.end()) boundaries_.insert(position); else boundaries_.erase(it);
+    if (it == boundaries_.end())
+      boundaries_.insert(position);
+    else
+      boundaries_.erase(it);
   }
   std::vector<char> in_;
   std::set<int> boundaries_;
@@ -131,8 +134,7 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
     if (l > p_lo && l < p_hi) events.push_back({l, x, true});
     if (u > p_lo && u < p_hi && u >= l) events.push_back({u, x, false});
   }
-  std::sort(events.begin(), events.end(),
-            [](const Event& a, const Event& b) { return a.p < b.p; });
+  std::sort(events.begin(), events.end(), [](const Event& a, const Event& b) { return a.p < b.p; });
 
   best.value = std::numeric_limits<double>::infinity();
   auto consider = [&](double value, double where, int from) {
@@ -214,9 +216,12 @@ double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_h
     const double s = x + 1.0, t = n - x + 1.0;
     const double mean = s / (s + t);
     double mass = 0;
-    if (b <= mean) mass = methods::beta_cdf(s, t, b) - methods::beta_cdf(s, t, a);
-    else if (a >= mean) mass = methods::beta_ccdf(s, t, a) - methods::beta_ccdf(s, t, b);
-    else mass = 1.0 - methods::beta_cdf(s, t, a) - methods::beta_ccdf(s, t, b);
+    if (b <= mean)
+      mass = methods::beta_cdf(s, t, b) - methods::beta_cdf(s, t, a);
+    else if (a >= mean)
+      mass = methods::beta_ccdf(s, t, a) - methods::beta_ccdf(s, t, b);
+    else
+      mass = 1.0 - methods::beta_cdf(s, t, a) - methods::beta_ccdf(s, t, b);
     sum += mass;
   }
   return sum / ((n + 1.0) * (p_hi - p_lo));

@@ -2,8 +2,7 @@
 
 namespace covergrid::engine {
 
-IntervalTable build_table(const methods::IntervalMethod& method, int n, double level,
-                          methods::Side side) {
+IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side) {
   IntervalTable t;
   t.n = n;
   if (!method.supports(side)) {

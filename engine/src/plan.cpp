@@ -14,8 +14,8 @@ Plan make_plan(const Scenario& scenario, std::size_t target_cells) {
   for (std::size_t m = 0; m < scenario.models.size(); ++m)
     for (std::size_t nb = 0; nb < rows; nb += plan.n_block)
       for (std::size_t pb = 0; pb < points; pb += plan.p_block)
-        plan.chunks.push_back({id++, m, nb, std::min(plan.n_block, rows - nb), pb,
-                               std::min(plan.p_block, points - pb)});
+        plan.chunks.push_back(
+            {id++, m, nb, std::min(plan.n_block, rows - nb), pb, std::min(plan.p_block, points - pb)});
   return plan;
 }
 

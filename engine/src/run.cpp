@@ -78,8 +78,7 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
         const InfimumResult inf = coverage_infimum(t, p_lo, p_hi);
         r.row_stats[index(Stat::inf_coverage) - grid_stat_count][at] = inf.value;
         r.row_stats[index(Stat::inf_coverage_p) - grid_stat_count][at] = inf.where;
-        r.row_stats[index(Stat::inf_coverage_from) - grid_stat_count][at] =
-            t.supported ? inf.from : nan;
+        r.row_stats[index(Stat::inf_coverage_from) - grid_stat_count][at] = t.supported ? inf.from : nan;
         r.row_stats[index(Stat::inf_refined) - grid_stat_count][at] =
             t.supported ? (inf.refined ? 1.0 : 0.0) : nan;
         r.row_stats[index(Stat::mean_coverage_continuous) - grid_stat_count][at] =
@@ -117,9 +116,8 @@ ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk) {
   return compute_with_tables(scenario, chunk, ptrs);
 }
 
-void grid_stats(const double* coverage, const double* width, const double* miss_low,
-                const double* miss_high, const std::vector<double>& p, double nominal,
-                double* stats) {
+void grid_stats(const double* coverage, const double* width, const double* miss_low, const double* miss_high,
+                const std::vector<double>& p, double nominal, double* stats) {
   const std::size_t count = p.size();
   double sum = 0, sq = 0, below = 0, w = 0, lo = 0, hi = 0;
   double min = std::numeric_limits<double>::infinity(), min_p = nan;
@@ -172,8 +170,7 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
         for (std::size_t i = 0; i < count; ++i) {
           const std::size_t at = (c * count + i) * points;
           grid_stats(&cov[at], &wid[at], &mlo[at], &mhi[at], scenario.p, nominal, row);
-          for (std::size_t s = 0; s < grid_stat_count; ++s)
-            stats[(s * combos + c) * count + i] = row[s];
+          for (std::size_t s = 0; s < grid_stat_count; ++s) stats[(s * combos + c) * count + i] = row[s];
         }
       }
       sink.write_grid_stats(model, nb, count, stats);
@@ -183,7 +180,7 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
 }  // namespace
 
 RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options) {
-  const Plan plan = make_plan(scenario);
+  const Plan plan = make_plan(scenario, options.chunk_cells);
   const auto combos = combos_of(scenario);
   RunReport report;
   report.chunks_total = plan.chunks.size();

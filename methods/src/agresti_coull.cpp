@@ -27,7 +27,10 @@ class AgrestiCoull final : public IntervalMethod {
 }  // namespace
 
 MethodEntry agresti_coull_entry() {
-  return {{"agresti-coull", "Agresti-Coull", Family::approximate, {},
+  return {{"agresti-coull",
+           "Agresti-Coull",
+           Family::approximate,
+           {},
            "Agresti & Coull (1998), Amer. Statist. 52:119-126; Brown, Cai & DasGupta (2001)",
            "n~=n+z^2, p~=(x+z^2/2)/n~, p~ -/+ z*sqrt(p~(1-p~)/n~); one-sided: z of the tail"},
           [](const ParamValues&) { return std::make_unique<AgrestiCoull>(); }};

@@ -38,7 +38,10 @@ class Arcsine final : public IntervalMethod {
 }  // namespace
 
 MethodEntry arcsine_entry() {
-  return {{"arcsine", "Arcsine (Anscombe)", Family::approximate, {},
+  return {{"arcsine",
+           "Arcsine (Anscombe)",
+           Family::approximate,
+           {},
            "Anscombe (1948), Biometrika 35:246-254; Brown, Cai & DasGupta (2001)",
            "sin^2(asin(sqrt(p~)) -/+ z/(2 sqrt n)), p~=(x+3/8)/(n+3/4); one-sided: z of the tail"},
           [](const ParamValues&) { return std::make_unique<Arcsine>(); }};

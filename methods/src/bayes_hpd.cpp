@@ -20,9 +20,7 @@ namespace {
 class BayesHpd final : public IntervalMethod {
  public:
   BayesHpd(double a, double b) : a_(a), b_(b) {}
-  double lower(int x, int n, double a_lo) const override {
-    return beta_quantile(x + a_, n - x + b_, a_lo);
-  }
+  double lower(int x, int n, double a_lo) const override { return beta_quantile(x + a_, n - x + b_, a_lo); }
   double upper(int x, int n, double a_hi) const override {
     return beta_quantile_upper(x + a_, n - x + b_, a_hi);
   }
@@ -42,8 +40,7 @@ class BayesHpd final : public IntervalMethod {
       return beta_log_kernel(s, t, beta_quantile_upper(s, t, alpha - u)) -
              beta_log_kernel(s, t, beta_quantile(s, t, u));
     };
-    const double u = solve_bracketed(gap, alpha * 1e-12, alpha * (1 - 1e-12),
-                                     "bayes-hpd lower tail mass");
+    const double u = solve_bracketed(gap, alpha * 1e-12, alpha * (1 - 1e-12), "bayes-hpd lower tail mass");
     return {beta_quantile(s, t, u), beta_quantile_upper(s, t, alpha - u)};
   }
   bool symmetric() const override { return a_ == b_; }
@@ -57,12 +54,14 @@ class BayesHpd final : public IntervalMethod {
 MethodEntry bayes_hpd_entry() {
   ParamSpec a{"a", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): first shape", {}, 0, 0};
   ParamSpec b{"b", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): second shape", {}, 0, 0};
-  return {{"bayes-hpd", "Bayesian HPD", Family::bayesian, {a, b},
+  return {{"bayes-hpd",
+           "Bayesian HPD",
+           Family::bayesian,
+           {a, b},
            "standard Bayesian practice (highest posterior density of Beta(x+a, n-x+b))",
            "shortest posterior-mass 1-alpha set; one-sided: posterior quantiles"},
           [](const ParamValues& p) {
-            return std::make_unique<BayesHpd>(std::get<double>(p.at("a")),
-                                              std::get<double>(p.at("b")));
+            return std::make_unique<BayesHpd>(std::get<double>(p.at("a")), std::get<double>(p.at("b")));
           }};
 }
 

@@ -35,7 +35,10 @@ int largest_cdf_at_most(int hi, int n, double p, double t) {
   if (binomial_cdf(hi, n, p) <= t) return hi;
   while (hi - lo > 1) {  // invariant: cdf(hi) > t
     const int mid = lo + (hi - lo) / 2;
-    if (binomial_cdf(mid, n, p) <= t) lo = mid; else hi = mid;
+    if (binomial_cdf(mid, n, p) <= t)
+      lo = mid;
+    else
+      hi = mid;
   }
   return lo;
 }
@@ -80,7 +83,10 @@ double blaker_lower(int x, int n, double alpha) {
       for (int it = 0; it < 200; ++it) {
         const double mid = 0.5 * (rejected + accepted);
         if (mid == rejected || mid == accepted) break;
-        if (acceptability(x, n, mid) > alpha) accepted = mid; else rejected = mid;
+        if (acceptability(x, n, mid) > alpha)
+          accepted = mid;
+        else
+          rejected = mid;
       }
       return accepted;
     }
@@ -106,7 +112,10 @@ class Blaker final : public IntervalMethod {
 }  // namespace
 
 MethodEntry blaker_entry() {
-  return {{"blaker", "Blaker (acceptability)", Family::exact_tail, {},
+  return {{"blaker",
+           "Blaker (acceptability)",
+           Family::exact_tail,
+           {},
            "Blaker (2000), Canad. J. Statist. 28:783-798",
            "inversion of Blaker's acceptability function; two-sided only"},
           [](const ParamValues&) { return std::make_unique<Blaker>(); }};

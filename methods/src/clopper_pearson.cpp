@@ -30,7 +30,10 @@ class ClopperPearson final : public IntervalMethod {
 }  // namespace
 
 MethodEntry clopper_pearson_entry() {
-  return {{"clopper-pearson", "Clopper-Pearson (exact)", Family::exact_tail, {},
+  return {{"clopper-pearson",
+           "Clopper-Pearson (exact)",
+           Family::exact_tail,
+           {},
            "Clopper & Pearson (1934), Biometrika 26:404-413",
            "L=Beta^-1(a_lo; x, n-x+1), U=Beta^-1(1-a_hi; x+1, n-x); L=0 at x=0, U=1 at x=n"},
           [](const ParamValues&) { return std::make_unique<ClopperPearson>(); }};

@@ -6,9 +6,12 @@ namespace covergrid::methods {
 
 std::string_view side_name(Side side) {
   switch (side) {
-    case Side::two_sided: return "two-sided";
-    case Side::lower_bound: return "lower-bound";
-    case Side::upper_bound: return "upper-bound";
+    case Side::two_sided:
+      return "two-sided";
+    case Side::lower_bound:
+      return "lower-bound";
+    case Side::upper_bound:
+      return "upper-bound";
   }
   return "?";
 }
@@ -24,11 +27,16 @@ bool parse_side(std::string_view name, Side& side) {
 
 std::string_view family_name(Family family) {
   switch (family) {
-    case Family::approximate: return "approximate";
-    case Family::exact_tail: return "exact-tail";
-    case Family::bayesian: return "Bayesian";
-    case Family::likelihood: return "likelihood";
-    case Family::user_table: return "user table";
+    case Family::approximate:
+      return "approximate";
+    case Family::exact_tail:
+      return "exact-tail";
+    case Family::bayesian:
+      return "Bayesian";
+    case Family::likelihood:
+      return "likelihood";
+    case Family::user_table:
+      return "user table";
   }
   return "?";
 }
@@ -37,12 +45,17 @@ Limits interval(const IntervalMethod& method, int x, int n, double level, Side s
   const double alpha = 1.0 - level;
   RawLimits raw{0.0, 1.0};
   switch (side) {
-    case Side::two_sided: raw = method.two_sided(x, n, alpha); break;
-    case Side::lower_bound: raw = {method.lower(x, n, alpha), 1.0}; break;
-    case Side::upper_bound: raw = {0.0, method.upper(x, n, alpha)}; break;
+    case Side::two_sided:
+      raw = method.two_sided(x, n, alpha);
+      break;
+    case Side::lower_bound:
+      raw = {method.lower(x, n, alpha), 1.0};
+      break;
+    case Side::upper_bound:
+      raw = {0.0, method.upper(x, n, alpha)};
+      break;
   }
-  Limits out{std::clamp(raw.lower, 0.0, 1.0), std::clamp(raw.upper, 0.0, 1.0), raw.lower,
-             raw.upper};
+  Limits out{std::clamp(raw.lower, 0.0, 1.0), std::clamp(raw.upper, 0.0, 1.0), raw.lower, raw.upper};
   return out;
 }
 

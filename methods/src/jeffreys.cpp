@@ -28,14 +28,15 @@ class Jeffreys final : public IntervalMethod {
 }  // namespace
 
 MethodEntry jeffreys_entry() {
-  ParamSpec boundary{"boundary", ParamSpec::Kind::boolean, true,
-                     "set L = 0 at x = 0 and U = 1 at x = n", {}, 0, 0};
-  return {{"jeffreys", "Jeffreys (equal-tailed)", Family::bayesian, {boundary},
+  ParamSpec boundary{
+      "boundary", ParamSpec::Kind::boolean, true, "set L = 0 at x = 0 and U = 1 at x = n", {}, 0, 0};
+  return {{"jeffreys",
+           "Jeffreys (equal-tailed)",
+           Family::bayesian,
+           {boundary},
            "Brown, Cai & DasGupta (2001), Statist. Sci. 16:101-133",
            "Beta(x+1/2, n-x+1/2) quantiles at a_lo and 1-a_hi; one-sided: single tail"},
-          [](const ParamValues& p) {
-            return std::make_unique<Jeffreys>(std::get<bool>(p.at("boundary")));
-          }};
+          [](const ParamValues& p) { return std::make_unique<Jeffreys>(std::get<bool>(p.at("boundary"))); }};
 }
 
 }  // namespace covergrid::methods

@@ -48,7 +48,10 @@ class LikelihoodRatio final : public IntervalMethod {
 }  // namespace
 
 MethodEntry likelihood_ratio_entry() {
-  return {{"likelihood-ratio", "Likelihood ratio", Family::likelihood, {},
+  return {{"likelihood-ratio",
+           "Likelihood ratio",
+           Family::likelihood,
+           {},
            "Newcombe (1998), Statist. Med. 17:857-872, method 7",
            "{p: 2[l(p^)-l(p)] <= z(tail)^2}; one-sided: signed-root inversion at the tail"},
           [](const ParamValues&) { return std::make_unique<LikelihoodRatio>(); }};

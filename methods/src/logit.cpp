@@ -49,9 +49,17 @@ class Logit final : public IntervalMethod {
 }  // namespace
 
 MethodEntry logit_entry() {
-  ParamSpec boundary{"boundary", ParamSpec::Kind::choice, std::string("clopper-pearson"),
-                     "convention at x = 0 and x = n", {"clopper-pearson", "add-half"}, 0, 0};
-  return {{"logit", "Logit", Family::approximate, {boundary},
+  ParamSpec boundary{"boundary",
+                     ParamSpec::Kind::choice,
+                     std::string("clopper-pearson"),
+                     "convention at x = 0 and x = n",
+                     {"clopper-pearson", "add-half"},
+                     0,
+                     0};
+  return {{"logit",
+           "Logit",
+           Family::approximate,
+           {boundary},
            "Brown, Cai & DasGupta (2001), Statist. Sci. 16:101-133",
            "expit(log(x/(n-x)) -/+ z*sqrt(n/(x(n-x)))); x=0, x=n per `boundary`"},
           [](const ParamValues& p) {

@@ -21,9 +21,7 @@ class MidP final : public IntervalMethod {
   }
   double upper(int x, int n, double a_hi) const override {
     if (x == n) return 1.0;
-    auto f = [&](double p) {
-      return binomial_cdf(x - 1, n, p) + 0.5 * binomial_pmf(x, n, p) - a_hi;
-    };
+    auto f = [&](double p) { return binomial_cdf(x - 1, n, p) + 0.5 * binomial_pmf(x, n, p) - a_hi; };
     return solve_bracketed(f, 0.0, 1.0, "mid-p upper limit");
   }
 };
@@ -31,7 +29,10 @@ class MidP final : public IntervalMethod {
 }  // namespace
 
 MethodEntry mid_p_entry() {
-  return {{"mid-p", "Mid-p exact", Family::exact_tail, {},
+  return {{"mid-p",
+           "Mid-p exact",
+           Family::exact_tail,
+           {},
            "Lancaster (1961), J. Amer. Statist. Assoc. 56:223-234; Newcombe (1998), method 6",
            "L: P(X>x)+P(X=x)/2=a_lo, U: P(X<x)+P(X=x)/2=a_hi; L=0 at x=0, U=1 at x=n"},
           [](const ParamValues&) { return std::make_unique<MidP>(); }};

@@ -51,8 +51,7 @@ double binomial_pmf(int k, int n, double p) {
   if (p >= 1) return k == n ? 1.0 : 0.0;
   // C(n,k) p^k q^(n-k) = ibeta_derivative(k+1, n-k+1, p) / (n+1); Boost
   // evaluates the prefix with Lanczos sums, accurate at large n.
-  return bm::ibeta_derivative(static_cast<double>(k) + 1, static_cast<double>(n - k) + 1, p,
-                              math_policy{}) /
+  return bm::ibeta_derivative(static_cast<double>(k) + 1, static_cast<double>(n - k) + 1, p, math_policy{}) /
          (static_cast<double>(n) + 1);
 }
 

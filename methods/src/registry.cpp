@@ -11,20 +11,10 @@ namespace covergrid::methods {
 
 std::span<const MethodEntry> registry() {
   static const std::vector<MethodEntry> entries = {
-      wald_entry(),
-      wald_cc_entry(),
-      wald_half_entry(),
-      wilson_entry(),
-      wilson_cc_entry(),
-      agresti_coull_entry(),
-      clopper_pearson_entry(),
-      mid_p_entry(),
-      jeffreys_entry(),
-      bayes_hpd_entry(),
-      likelihood_ratio_entry(),
-      arcsine_entry(),
-      logit_entry(),
-      blaker_entry(),
+      wald_entry(),      wald_cc_entry(),       wald_half_entry(),        wilson_entry(),
+      wilson_cc_entry(), agresti_coull_entry(), clopper_pearson_entry(),  mid_p_entry(),
+      jeffreys_entry(),  bayes_hpd_entry(),     likelihood_ratio_entry(), arcsine_entry(),
+      logit_entry(),     blaker_entry(),
   };
   return entries;
 }
@@ -49,29 +39,27 @@ ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given) {
     if (spec == entry.info.params.end()) {
       std::string known;
       for (const auto& s : entry.info.params) known += (known.empty() ? "" : ", ") + s.name;
-      throw ParameterError(key, fmt::format("method '{}' takes no parameter '{}'{}", entry.info.id,
-                                            key,
-                                            known.empty() ? std::string(" (it takes none)")
-                                                          : " (it takes: " + known + ")"));
+      throw ParameterError(
+          key, fmt::format("method '{}' takes no parameter '{}'{}", entry.info.id, key,
+                           known.empty() ? std::string(" (it takes none)") : " (it takes: " + known + ")"));
     }
     switch (spec->kind) {
       case ParamSpec::Kind::boolean:
         if (!std::holds_alternative<bool>(value))
-          throw ParameterError(key, fmt::format("parameter '{}' of method '{}' must be true or false",
-                                                key, entry.info.id));
+          throw ParameterError(
+              key, fmt::format("parameter '{}' of method '{}' must be true or false", key, entry.info.id));
         break;
       case ParamSpec::Kind::number: {
         const double* d = std::get_if<double>(&value);
         if (!d)
-          throw ParameterError(key, fmt::format("parameter '{}' of method '{}' must be a number", key,
-                                                entry.info.id));
+          throw ParameterError(
+              key, fmt::format("parameter '{}' of method '{}' must be a number", key, entry.info.id));
         if (!std::isfinite(*d) || *d <= spec->min || (spec->max > 0 && *d > spec->max))
           throw ParameterError(
-              key, spec->max > 0
-                       ? fmt::format("parameter '{}' of method '{}' = {} is outside ({}, {}]", key,
-                                     entry.info.id, *d, spec->min, spec->max)
-                       : fmt::format("parameter '{}' of method '{}' = {} must be greater than {}",
-                                     key, entry.info.id, *d, spec->min));
+              key, spec->max > 0 ? fmt::format("parameter '{}' of method '{}' = {} is outside ({}, {}]", key,
+                                               entry.info.id, *d, spec->min, spec->max)
+                                 : fmt::format("parameter '{}' of method '{}' = {} must be greater than {}",
+                                               key, entry.info.id, *d, spec->min));
         break;
       }
       case ParamSpec::Kind::choice: {
@@ -79,8 +67,8 @@ ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given) {
         if (!s || std::find(spec->choices.begin(), spec->choices.end(), *s) == spec->choices.end()) {
           std::string list;
           for (const auto& c : spec->choices) list += (list.empty() ? "\"" : ", \"") + c + "\"";
-          throw ParameterError(key, fmt::format("parameter '{}' of method '{}' must be one of {}",
-                                                key, entry.info.id, list));
+          throw ParameterError(
+              key, fmt::format("parameter '{}' of method '{}' must be one of {}", key, entry.info.id, list));
         }
         break;
       }

@@ -27,7 +27,10 @@ class Wald final : public IntervalMethod {
 }  // namespace
 
 MethodEntry wald_entry() {
-  return {{"wald", "Wald (normal approximation)", Family::approximate, {},
+  return {{"wald",
+           "Wald (normal approximation)",
+           Family::approximate,
+           {},
            "Laplace (1812); Brown, Cai & DasGupta (2001), Statist. Sci. 16:101-133",
            "p^ -/+ z*sqrt(p^(1-p^)/n); one-sided: z of the single tail"},
           [](const ParamValues&) { return std::make_unique<Wald>(); }};

@@ -29,7 +29,10 @@ class WaldCc final : public IntervalMethod {
 }  // namespace
 
 MethodEntry wald_cc_entry() {
-  return {{"wald-cc", "Wald, continuity-corrected", Family::approximate, {},
+  return {{"wald-cc",
+           "Wald, continuity-corrected",
+           Family::approximate,
+           {},
            "Newcombe (1998), Statist. Med. 17:857-872, method 2",
            "p^ -/+ (z*sqrt(p^(1-p^)/n) + 1/(2n)); one-sided: z of the single tail"},
           [](const ParamValues&) { return std::make_unique<WaldCc>(); }};

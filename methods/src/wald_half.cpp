@@ -22,7 +22,10 @@ class WaldHalf final : public IntervalMethod {
 }  // namespace
 
 MethodEntry wald_half_entry() {
-  return {{"wald-half", "Conservative margin of error", Family::approximate, {},
+  return {{"wald-half",
+           "Conservative margin of error",
+           Family::approximate,
+           {},
            "common practice (p(1-p) <= 1/4)",
            "p^ -/+ z/(2*sqrt(n)); one-sided: z of the single tail"},
           [](const ParamValues&) { return std::make_unique<WaldHalf>(); }};

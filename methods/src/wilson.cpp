@@ -33,7 +33,10 @@ class Wilson final : public IntervalMethod {
 }  // namespace
 
 MethodEntry wilson_entry() {
-  return {{"wilson", "Wilson score", Family::approximate, {},
+  return {{"wilson",
+           "Wilson score",
+           Family::approximate,
+           {},
            "Wilson (1927), J. Amer. Statist. Assoc. 22:209-212",
            "(x+z^2/2)/(n+z^2) -/+ z*sqrt(n)/(n+z^2)*sqrt(p^q^+z^2/(4n)); one-sided: z of the tail"},
           [](const ParamValues&) { return std::make_unique<Wilson>(); }};

@@ -33,7 +33,10 @@ class WilsonCc final : public IntervalMethod {
 }  // namespace
 
 MethodEntry wilson_cc_entry() {
-  return {{"wilson-cc", "Wilson score, continuity-corrected", Family::approximate, {},
+  return {{"wilson-cc",
+           "Wilson score, continuity-corrected",
+           Family::approximate,
+           {},
            "Newcombe (1998), Statist. Med. 17:857-872, method 4",
            "Newcombe's method 4 with L=0 at x=0, U=1 at x=n; one-sided: z of the tail"},
           [](const ParamValues&) { return std::make_unique<WilsonCc>(); }};

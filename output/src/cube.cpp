@@ -42,10 +42,12 @@ Existing read_existing(const std::string& path) {
     File f = File::open(path, false);
     const hid_t root = f.id();
     if (!has_attr(root, "format") || get_attr_string(root, "format") != cube_format_name)
-      throw InputError(path, "exists and is not a covergrid cube; not touching it (use --overwrite to replace it)");
+      throw InputError(path,
+                       "exists and is not a covergrid cube; not touching it (use --overwrite to replace it)");
     return {get_attr_string(root, "scenario_sha256"), get_attr_int(root, "complete") != 0};
   } catch (const CubeError&) {
-    throw InputError(path, "exists and is not a readable covergrid cube; not touching it (use --overwrite to replace it)");
+    throw InputError(
+        path, "exists and is not a readable covergrid cube; not touching it (use --overwrite to replace it)");
   }
 }
 
@@ -58,8 +60,9 @@ OutputState inspect_output(const engine::Scenario& scenario, bool overwrite) {
   if (fs::exists(path)) {
     const Existing e = read_existing(path);
     if (e.sha != scenario.sha256)
-      throw InputError(path, "holds the results of a different scenario (checksum differs); "
-                             "use --overwrite to replace it");
+      throw InputError(path,
+                       "holds the results of a different scenario (checksum differs); "
+                       "use --overwrite to replace it");
     if (e.complete && !fs::exists(temp)) return OutputState::up_to_date;
   }
   if (fs::exists(temp)) {
@@ -71,15 +74,18 @@ OutputState inspect_output(const engine::Scenario& scenario, bool overwrite) {
       return OutputState::fresh;
     }
     if (e.sha != scenario.sha256)
-      throw InputError(temp, "is an unfinished run of a different scenario; "
-                             "use --overwrite to discard it");
+      throw InputError(temp,
+                       "is an unfinished run of a different scenario; "
+                       "use --overwrite to discard it");
     return OutputState::resumed;
   }
   return OutputState::fresh;
 }
 
 CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& plan, bool resume)
-    : scenario_(scenario), plan_(plan), final_path_(scenario.cube_path),
+    : scenario_(scenario),
+      plan_(plan),
+      final_path_(scenario.cube_path),
       temp_path_(partial_path(scenario.cube_path)) {
   if (resume) {
     file_ = File::open(temp_path_, true);
@@ -142,8 +148,8 @@ void CubeWriter::create_layout() {
     for (const auto& [k, v] : m.params) set_attr(g.get(), "param." + k, methods::param_text(v));
   }
 
-  const std::vector<hsize_t> dims = {s.models.size(), s.sides.size(), s.levels.size(),
-                                     s.methods.size(), s.n.size(), s.p.size()};
+  const std::vector<hsize_t> dims = {s.models.size(),  s.sides.size(), s.levels.size(),
+                                     s.methods.size(), s.n.size(),     s.p.size()};
   const std::vector<hsize_t> chunk = {1, 1, 1, 1, plan_.n_block, plan_.p_block};
   const std::vector<std::string> axis_list(axis_names.begin(), axis_names.end());
   if (s.exact) {
@@ -158,8 +164,8 @@ void CubeWriter::create_layout() {
     }
   }
   Handle sg = create_group(root, "summary");
-  set_attr(sg.get(), "p_range", std::vector<std::string>{fmt::format("{}", s.p.front()),
-                                                         fmt::format("{}", s.p.back())});
+  set_attr(sg.get(), "p_range",
+           std::vector<std::string>{fmt::format("{}", s.p.front()), fmt::format("{}", s.p.back())});
   const std::vector<hsize_t> sdims(dims.begin(), dims.end() - 1);
   const std::vector<hsize_t> schunk = {1, 1, 1, 1, plan_.n_block};
   const std::vector<std::string> saxes(axis_list.begin(), axis_list.end() - 1);
@@ -187,7 +193,8 @@ void CubeWriter::write_chunk(const engine::ChunkResult& r) {
   if (r.has_exact) {
     const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin, c.p_begin};
     const std::vector<hsize_t> count = {1, S, L, M, c.n_count, c.p_count};
-    for (std::size_t k = 0; k < engine::metric_count; ++k) write_block(exact_[k].get(), start, count, r.exact[k].data());
+    for (std::size_t k = 0; k < engine::metric_count; ++k)
+      write_block(exact_[k].get(), start, count, r.exact[k].data());
   }
   if (r.has_row_stats) {
     const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin};
@@ -225,7 +232,8 @@ void CubeWriter::write_grid_stats(std::size_t model, std::size_t n_begin, std::s
   const std::size_t S = scenario_.sides.size(), L = scenario_.levels.size(), M = scenario_.methods.size();
   const std::size_t block = S * L * M * n_count;
   for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
-    write_block(summary_[k].get(), {model, 0, 0, 0, n_begin}, {1, S, L, M, n_count}, stats.data() + k * block);
+    write_block(summary_[k].get(), {model, 0, 0, 0, n_begin}, {1, S, L, M, n_count},
+                stats.data() + k * block);
 }
 
 void CubeWriter::finish() {
@@ -270,7 +278,8 @@ CubeReader::CubeReader(const std::string& path) : path_(path) {
       check(H5Oget_info2(g.get(), &oinfo, H5O_INFO_NUM_ATTRS), "read method attributes");
       for (hsize_t i = 0; i < oinfo.num_attrs; ++i) {
         char name[256];
-        const ssize_t len = H5Aget_name_by_idx(g.get(), ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT);
+        const ssize_t len =
+            H5Aget_name_by_idx(g.get(), ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT);
         if (len < 0) throw CubeError("cannot read a method attribute name");
         info[name] = get_attr_string(g.get(), name);
       }

@@ -27,8 +27,7 @@ File File::create(const std::string& path) {
   Handle fcpl(check_id(H5Pcreate(H5P_FILE_CREATE), "make a file-creation list"), H5Pclose);
   check(H5Pset_file_space_strategy(fcpl.get(), H5F_FSPACE_STRATEGY_NONE, 0, 1),
         "set the file-space strategy");
-  f.h_ = Handle(check_id(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, fcpl.get(), H5P_DEFAULT),
-                         "create " + path),
+  f.h_ = Handle(check_id(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, fcpl.get(), H5P_DEFAULT), "create " + path),
                 H5Fclose);
   return f;
 }
@@ -101,7 +100,8 @@ Handle write_plain(hid_t parent, const std::string& name, const std::vector<T>& 
                                H5P_DEFAULT),
                     "create dataset " + name),
            H5Dclose);
-  if (!v.empty()) check(H5Dwrite(d.get(), mem_type, H5S_ALL, H5S_ALL, H5P_DEFAULT, v.data()), "write " + name);
+  if (!v.empty())
+    check(H5Dwrite(d.get(), mem_type, H5S_ALL, H5S_ALL, H5P_DEFAULT, v.data()), "write " + name);
   return d;
 }
 

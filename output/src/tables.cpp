@@ -101,9 +101,17 @@ std::vector<RankingRow> ranking(const CubeReader& cube) {
 }
 
 std::vector<std::string> write_tables(const CubeReader& cube, const std::string& prefix) {
-  static const char* stats[] = {"mean_coverage", "min_coverage", "min_coverage_p", "inf_coverage",
-                                "inf_coverage_p", "inf_coverage_from", "mean_coverage_continuous",
-                                "rms_deviation", "share_below", "mean_width", "mean_miss_low",
+  static const char* stats[] = {"mean_coverage",
+                                "min_coverage",
+                                "min_coverage_p",
+                                "inf_coverage",
+                                "inf_coverage_p",
+                                "inf_coverage_from",
+                                "mean_coverage_continuous",
+                                "rms_deviation",
+                                "share_below",
+                                "mean_width",
+                                "mean_miss_low",
                                 "mean_miss_high"};
   std::vector<std::vector<double>> values;
   for (const char* s : stats) values.push_back(cube.summary(s));
@@ -128,31 +136,38 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
           }
 
   const auto rank = ranking(cube);
-  std::string rcsv = "model,side,level,rank,method,worst_inf_coverage,worst_at_n,mean_coverage_continuous,"
-                     "mean_rms_deviation,mean_share_below,mean_width\n";
+  std::string rcsv =
+      "model,side,level,rank,method,worst_inf_coverage,worst_at_n,mean_coverage_continuous,"
+      "mean_rms_deviation,mean_share_below,mean_width\n";
   for (const auto& r : rank)
     rcsv += fmt::format("{},{},{},{},\"{}\",{},{},{},{},{},{}\n", cube.models[r.model], cube.sides[r.side],
                         cube.levels[r.level], r.rank, cube.methods[r.method], num(r.worst_inf, 10),
                         r.worst_inf_n, num(r.mean_coverage, 10), num(r.rms_deviation, 10),
                         num(r.share_below, 10), num(r.mean_width, 10));
 
-  std::string md = fmt::format("# {}\n\n", cube.attr("title").empty() ? "covergrid results" : cube.attr("title"));
-  md += fmt::format("Cube `{}`, scenario checksum `{}`, covergrid {}.\n\n", fs::path(cube.path()).filename().string(),
-                    cube.attr("scenario_sha256").substr(0, 16), cube.attr("tool_version"));
-  md += fmt::format("p range [{}, {}] ({} grid points), n from {} to {} ({} values). "
-                    "Coverage figures are exact (binomial enumeration).\n\n",
-                    cube.p.front(), cube.p.back(), cube.p.size(), cube.n.front(), cube.n.back(), cube.n.size());
+  std::string md =
+      fmt::format("# {}\n\n", cube.attr("title").empty() ? "covergrid results" : cube.attr("title"));
+  md += fmt::format("Cube `{}`, scenario checksum `{}`, covergrid {}.\n\n",
+                    fs::path(cube.path()).filename().string(), cube.attr("scenario_sha256").substr(0, 16),
+                    cube.attr("tool_version"));
+  md += fmt::format(
+      "p range [{}, {}] ({} grid points), n from {} to {} ({} values). "
+      "Coverage figures are exact (binomial enumeration).\n\n",
+      cube.p.front(), cube.p.back(), cube.p.size(), cube.n.front(), cube.n.back(), cube.n.size());
   md += std::string("> ") + coverage_caution + "\n\n";
-  md += "## Standing of the methods over the whole n range\n\n"
-        "Ordered by the mean over n of the RMS deviation of grid coverage from nominal (closest first). "
-        "*Worst* is the smallest exact infimum of coverage over the continuous p range, at any n.\n";
+  md +=
+      "## Standing of the methods over the whole n range\n\n"
+      "Ordered by the mean over n of the RMS deviation of grid coverage from nominal (closest first). "
+      "*Worst* is the smallest exact infimum of coverage over the continuous p range, at any n.\n";
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
       for (std::size_t l = 0; l < cube.levels.size(); ++l) {
         md += fmt::format("\n### {} model, {}, nominal {}%\n\n", cube.models[mo], cube.sides[s],
                           num(100 * cube.levels[l]));
-        md += "| # | method | worst (%) | at n | mean coverage (%) | RMS dev. (pts) | p below nominal (%) | mean width |\n"
-              "|---:|---|---:|---:|---:|---:|---:|---:|\n";
+        md +=
+            "| # | method | worst (%) | at n | mean coverage (%) | RMS dev. (pts) | p below nominal (%) | "
+            "mean width |\n"
+            "|---:|---|---:|---:|---:|---:|---:|---:|\n";
         for (const auto& r : rank)
           if (r.model == mo && r.side == s && r.level == l)
             md += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} |\n", r.rank, cube.methods[r.method],
@@ -176,20 +191,21 @@ std::string headline(const CubeReader& cube) {
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
       for (std::size_t l = 0; l < cube.levels.size(); ++l) {
-        out += fmt::format("\n{} model, {}, nominal {}%, n {}..{}, p {}..{}\n", cube.models[mo], cube.sides[s],
-                           num(100 * cube.levels[l]), cube.n.front(), cube.n.back(), cube.p.front(),
-                           cube.p.back());
-        out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9}\n", "#", "method", width,
-                           "worst %", "at n", "mean %", "RMS pts", "below %", "width");
+        out += fmt::format("\n{} model, {}, nominal {}%, n {}..{}, p {}..{}\n", cube.models[mo],
+                           cube.sides[s], num(100 * cube.levels[l]), cube.n.front(), cube.n.back(),
+                           cube.p.front(), cube.p.back());
+        out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9}\n", "#", "method",
+                           width, "worst %", "at n", "mean %", "RMS pts", "below %", "width");
         for (const auto& r : rank)
           if (r.model == mo && r.side == s && r.level == l)
             out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9.4f}\n", r.rank,
                                cube.methods[r.method], width, pct(r.worst_inf), r.worst_inf_n,
                                pct(r.mean_coverage), pct(r.rms_deviation), pct(r.share_below), r.mean_width);
       }
-  out += "\nworst = smallest exact coverage infimum over the continuous p range at any n;\n"
-         "mean = exact mean coverage over that range (uniform p), averaged over n;\n"
-         "RMS = root-mean-square deviation of grid coverage from nominal, in percentage points.\n\n";
+  out +=
+      "\nworst = smallest exact coverage infimum over the continuous p range at any n;\n"
+      "mean = exact mean coverage over that range (uniform p), averaged over n;\n"
+      "RMS = root-mean-square deviation of grid coverage from nominal, in percentage points.\n\n";
   out += coverage_caution;
   out += '\n';
   return out;

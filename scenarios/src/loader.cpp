@@ -52,13 +52,20 @@ std::string value_text(const toml::node& node) {
 
 std::string type_name(const toml::node& node) {
   switch (node.type()) {
-    case toml::node_type::string: return "a string";
-    case toml::node_type::integer: return "an integer";
-    case toml::node_type::floating_point: return "a number";
-    case toml::node_type::boolean: return "a boolean";
-    case toml::node_type::array: return "an array";
-    case toml::node_type::table: return "a table";
-    default: return "a date or time";
+    case toml::node_type::string:
+      return "a string";
+    case toml::node_type::integer:
+      return "an integer";
+    case toml::node_type::floating_point:
+      return "a number";
+    case toml::node_type::boolean:
+      return "a boolean";
+    case toml::node_type::array:
+      return "an array";
+    case toml::node_type::table:
+      return "a table";
+    default:
+      return "a date or time";
   }
 }
 
@@ -128,14 +135,16 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
     const double b = number_of(ctx, *to, what + ".to");
     check(*from, a, what + ".from");
     check(*to, b, what + ".to");
-    if (b < a) ctx.fail(to, fmt::format("{}.to = {} is below {}.from = {}", what, value_text(*to), what, value_text(*from)));
+    if (b < a)
+      ctx.fail(to, fmt::format("{}.to = {} is below {}.from = {}", what, value_text(*to), what,
+                               value_text(*from)));
     const toml::node* step = t.get("step");
     const toml::node* count = t.get("count");
     const toml::node* spacing = t.get("spacing");
     if (step && count) ctx.fail(step, what + " takes 'step' or 'count', not both");
     std::string space = spacing ? string_of(ctx, *spacing, what + ".spacing") : "linear";
-    const std::vector<std::string> allowed = integer ? std::vector<std::string>{"linear", "log"}
-                                                     : std::vector<std::string>{"linear", "logit"};
+    const std::vector<std::string> allowed =
+        integer ? std::vector<std::string>{"linear", "log"} : std::vector<std::string>{"linear", "logit"};
     if (std::find(allowed.begin(), allowed.end(), space) == allowed.end())
       ctx.fail(spacing, fmt::format("{}.spacing = \"{}\" is not one of \"{}\", \"{}\"", what, space,
                                     allowed[0], allowed[1]));
@@ -145,7 +154,8 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
                                : number_of(ctx, *step, what + ".step");
       if (!(s > 0)) ctx.fail(step, fmt::format("{}.step = {} must be positive", what, value_text(*step)));
       const double steps = std::floor((b - a) / s + 1e-9);
-      if (steps > 1e7) ctx.fail(step, fmt::format("{}.step = {} gives more than 10^7 points", what, value_text(*step)));
+      if (steps > 1e7)
+        ctx.fail(step, fmt::format("{}.step = {} gives more than 10^7 points", what, value_text(*step)));
       for (double i = 0; i <= steps; ++i) out.push_back(integer ? a + i * s : std::min(b, a + i * s));
     } else {
       if (!count) {
@@ -160,7 +170,8 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
         for (std::int64_t i = 0; i < k; ++i) {
           const double u = k == 1 ? 0.0 : static_cast<double>(i) / static_cast<double>(k - 1);
           double v = 0;
-          if (space == "log") v = std::round(std::exp(std::log(a) + u * (std::log(b) - std::log(a))));
+          if (space == "log")
+            v = std::round(std::exp(std::log(a) + u * (std::log(b) - std::log(a))));
           else if (space == "logit") {
             const double la = std::log(a / (1 - a)), lb = std::log(b / (1 - b));
             const double l = la + u * (lb - la);
@@ -236,12 +247,15 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   s.p = axis_values(ctx, *p_node, "p", false);
   {
     std::vector<const toml::node*> items;
-    if (level_node->is_array()) for (const auto& i : *level_node->as_array()) items.push_back(&i);
-    else items.push_back(level_node);
+    if (level_node->is_array())
+      for (const auto& i : *level_node->as_array()) items.push_back(&i);
+    else
+      items.push_back(level_node);
     if (items.empty()) ctx.fail(level_node, "[grid] levels is an empty list");
     for (const auto* i : items) {
       const double v = number_of(ctx, *i, "[grid] levels entries");
-      if (!(v > 0 && v < 1)) ctx.fail(i, fmt::format("[grid] levels entry {} is outside (0, 1)", value_text(*i)));
+      if (!(v > 0 && v < 1))
+        ctx.fail(i, fmt::format("[grid] levels entry {} is outside (0, 1)", value_text(*i)));
       if (std::find(s.levels.begin(), s.levels.end(), v) != s.levels.end())
         ctx.fail(i, fmt::format("[grid] levels lists {} twice", value_text(*i)));
       s.levels.push_back(v);
@@ -250,14 +264,19 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   }
   if (const toml::node* sides = grid.get("sides")) {
     std::vector<const toml::node*> items;
-    if (sides->is_array()) for (const auto& i : *sides->as_array()) items.push_back(&i);
-    else items.push_back(sides);
+    if (sides->is_array())
+      for (const auto& i : *sides->as_array()) items.push_back(&i);
+    else
+      items.push_back(sides);
     if (items.empty()) ctx.fail(sides, "[grid] sides is an empty list");
     for (const auto* i : items) {
       const std::string name = string_of(ctx, *i, "[grid] sides entries");
       methods::Side side{};
       if (!methods::parse_side(name, side))
-        ctx.fail(i, fmt::format("[grid] sides entry \"{}\" is not one of \"two-sided\", \"lower-bound\", \"upper-bound\"", name));
+        ctx.fail(
+            i, fmt::format(
+                   "[grid] sides entry \"{}\" is not one of \"two-sided\", \"lower-bound\", \"upper-bound\"",
+                   name));
       if (std::find(s.sides.begin(), s.sides.end(), side) != s.sides.end())
         ctx.fail(i, fmt::format("[grid] sides lists \"{}\" twice", name));
       s.sides.push_back(side);
@@ -277,8 +296,9 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       const std::int64_t v = integer_of(ctx, *r, "[evaluate] replicates");
       if (v < 0) ctx.fail(r, fmt::format("[evaluate] replicates = {} must not be negative", v));
       if (v > 0)
-        ctx.fail(r, "[evaluate] replicates > 0: Monte Carlo evaluation is not available in this "
-                    "version yet; set replicates = 0");
+        ctx.fail(r,
+                 "[evaluate] replicates > 0: Monte Carlo evaluation is not available in this "
+                 "version yet; set replicates = 0");
       s.replicates = static_cast<std::uint64_t>(v);
     }
     if (!s.exact && s.replicates == 0)
@@ -324,8 +344,7 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       ctx.fail(&item, fmt::format("[[method]] label \"{}\" is used twice; give one a 'label'", inst.label));
     bool any_side = false;
     for (auto side : s.sides) any_side |= inst.method->supports(side);
-    if (!any_side)
-      ctx.fail(id_node, fmt::format("[[method]] {} supports none of the scenario's sides", id));
+    if (!any_side) ctx.fail(id_node, fmt::format("[[method]] {} supports none of the scenario's sides", id));
     s.methods.push_back(std::move(inst));
   }
   if (s.methods.empty()) ctx.fail(m_node, "no [[method]] entries");
@@ -341,11 +360,14 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       if (!kind) ctx.fail(&item, "[[model]] needs 'kind'");
       const std::string k = string_of(ctx, *kind, "[[model]] kind");
       engine::ModelSpec spec;
-      if (k == "binomial") spec.kind = engine::ModelKind::binomial;
+      if (k == "binomial")
+        spec.kind = engine::ModelKind::binomial;
       else if (k == "hypergeometric" || k == "beta-binomial")
         ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not available in this version yet "
-                                   "(available: \"binomial\")", k));
-      else ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: \"binomial\")", k));
+                                   "(available: \"binomial\")",
+                                   k));
+      else
+        ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: \"binomial\")", k));
       spec.label = k;
       if (const auto* l = t.get("label")) spec.label = string_of(ctx, *l, "[[model]] label");
       if (!model_labels.insert(spec.label).second)

@@ -41,13 +41,18 @@ methods::MethodInstance parse_method_option(const std::string& text) {
       const std::string item = rest.substr(start, comma - start);
       const auto eq = item.find('=');
       if (eq == std::string::npos || eq == 0)
-        throw InputError("--method " + text, "parameters are written key=value, e.g. jeffreys:boundary=false");
+        throw InputError("--method " + text,
+                         "parameters are written key=value, e.g. jeffreys:boundary=false");
       const std::string key = item.substr(0, eq), value = item.substr(eq + 1);
-      if (value == "true" || value == "false") given[key] = value == "true";
+      if (value == "true" || value == "false")
+        given[key] = value == "true";
       else {
         char* end = nullptr;
         const double d = std::strtod(value.c_str(), &end);
-        if (end && *end == '\0' && !value.empty()) given[key] = d; else given[key] = value;
+        if (end && *end == '\0' && !value.empty())
+          given[key] = d;
+        else
+          given[key] = value;
       }
       if (comma == std::string::npos) break;
       start = comma + 1;
@@ -84,8 +89,9 @@ class Progress {
     std::string line;
     if (tty_) {
       const int bar = 28, filled = static_cast<int>(frac * bar);
-      line = fmt::format("\r[{}{}] {:5.1f}%  {}/{} cells  {:.3g} cells/s  {} left  ", std::string(filled, '#'),
-                         std::string(bar - filled, '.'), 100 * frac, done, total, rate, duration(left));
+      line =
+          fmt::format("\r[{}{}] {:5.1f}%  {}/{} cells  {:.3g} cells/s  {} left  ", std::string(filled, '#'),
+                      std::string(bar - filled, '.'), 100 * frac, done, total, rate, duration(left));
     } else {
       line = fmt::format("progress: {}/{} cells ({:.1f}%), {:.3g} cells/s, about {} left\n", done, total,
                          100 * frac, rate, duration(left));
@@ -110,19 +116,20 @@ class Progress {
 
 int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, std::ostream& out,
             std::ostream& err) {
-  engine::Scenario scenario = file.empty()
-                                  ? scenarios::load_scenario_text(scenarios::bundled_demo_text(),
-                                                                  "<bundled demo>", "")
-                                  : scenarios::load_scenario_file(file);
+  engine::Scenario scenario =
+      file.empty() ? scenarios::load_scenario_text(scenarios::bundled_demo_text(), "<bundled demo>", "")
+                   : scenarios::load_scenario_file(file);
   if (file.empty() && !quiet) err << "covergrid: no scenario given; running the bundled demo\n";
   const output::OutputState state = output::inspect_output(scenario, overwrite);
   if (state == output::OutputState::up_to_date) {
-    if (!quiet) err << fmt::format("covergrid: {} is already complete for this scenario\n", scenario.cube_path);
+    if (!quiet)
+      err << fmt::format("covergrid: {} is already complete for this scenario\n", scenario.cube_path);
   } else {
     const engine::Plan plan = engine::make_plan(scenario);
     output::CubeWriter writer(scenario, plan, state == output::OutputState::resumed);
     if (state == output::OutputState::resumed && !quiet)
-      err << fmt::format("covergrid: resuming the unfinished run in {}\n", output::partial_path(scenario.cube_path));
+      err << fmt::format("covergrid: resuming the unfinished run in {}\n",
+                         output::partial_path(scenario.cube_path));
     Progress progress(err, quiet, isatty(STDERR_FILENO) != 0);
     engine::RunOptions options;
     options.threads = threads;
@@ -143,14 +150,16 @@ int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, st
     std::signal(SIGTERM, old_term);
     progress.done();
     if (report.interrupted) {
-      err << fmt::format("covergrid: stopped; {} of {} chunks are saved in {}; run the same command to resume\n",
-                         report.chunks_resumed + report.chunks_computed, report.chunks_total,
-                         output::partial_path(scenario.cube_path));
+      err << fmt::format(
+          "covergrid: stopped; {} of {} chunks are saved in {}; run the same command to resume\n",
+          report.chunks_resumed + report.chunks_computed, report.chunks_total,
+          output::partial_path(scenario.cube_path));
       return exit_internal;
     }
   }
   output::CubeReader cube(scenario.cube_path);
-  out << fmt::format("{}\ncube: {}\n", scenario.title.empty() ? "covergrid run" : scenario.title, scenario.cube_path);
+  out << fmt::format("{}\ncube: {}\n", scenario.title.empty() ? "covergrid run" : scenario.title,
+                     scenario.cube_path);
   if (!scenario.tables_prefix.empty())
     for (const auto& p : output::write_tables(cube, scenario.tables_prefix)) out << "table: " << p << '\n';
   out << output::headline(cube);
@@ -163,10 +172,12 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
   if (x < 0 || x > n) throw InputError("X", fmt::format("X = {} must lie in 0..N = 0..{}", x, n));
   if (!(level > 0 && level < 1)) throw InputError("--level", fmt::format("{} is outside (0, 1)", level));
   if (n > scenarios::max_sample_size)
-    throw InputError("N", fmt::format("N = {} is above the largest supported n ({})", n, scenarios::max_sample_size));
+    throw InputError(
+        "N", fmt::format("N = {} is above the largest supported n ({})", n, scenarios::max_sample_size));
   methods::Side side{};
   if (!methods::parse_side(side_text, side))
-    throw InputError("--side", fmt::format("\"{}\" is not one of two-sided, lower-bound, upper-bound", side_text));
+    throw InputError("--side",
+                     fmt::format("\"{}\" is not one of two-sided, lower-bound, upper-bound", side_text));
   std::vector<methods::MethodInstance> list;
   if (method_texts.empty())
     for (const auto& e : methods::registry()) list.push_back(methods::make_instance(e.info.id, {}));
@@ -174,23 +185,27 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
     for (const auto& t : method_texts) list.push_back(parse_method_option(t));
   std::size_t width = 6;
   for (const auto& m : list) width = std::max(width, m.label.size());
-  if (csv) out << "method,x,n,level,side,lower,upper,raw_lower,raw_upper\n";
+  if (csv)
+    out << "method,x,n,level,side,lower,upper,raw_lower,raw_upper\n";
   else
-    out << fmt::format("x = {}, n = {}, p^ = {:.6f}, {} at {}%\n\n  {:<{}}  {:>10}  {:>10}  {:>10}  note\n", x, n,
-                       static_cast<double>(x) / n, side_text, fmt::format("{:g}", 100 * level), "method", width,
-                       "lower", "upper", "width");
+    out << fmt::format("x = {}, n = {}, p^ = {:.6f}, {} at {}%\n\n  {:<{}}  {:>10}  {:>10}  {:>10}  note\n",
+                       x, n, static_cast<double>(x) / n, side_text, fmt::format("{:g}", 100 * level),
+                       "method", width, "lower", "upper", "width");
   for (const auto& m : list) {
     if (!m.method->supports(side)) {
-      if (!csv) out << fmt::format("  {:<{}}  {:>10}  {:>10}  {:>10}  {} only\n", m.label, width, "-", "-", "-", "two-sided");
+      if (!csv)
+        out << fmt::format("  {:<{}}  {:>10}  {:>10}  {:>10}  {} only\n", m.label, width, "-", "-", "-",
+                           "two-sided");
       continue;
     }
     const auto lim = methods::interval(*m.method, x, n, level, side);
     if (csv) {
-      out << fmt::format("\"{}\",{},{},{},{},{:.17g},{:.17g},{:.17g},{:.17g}\n", m.label, x, n, level, side_text,
-                         lim.lower, lim.upper, lim.raw_lower, lim.raw_upper);
+      out << fmt::format("\"{}\",{},{},{},{},{:.17g},{:.17g},{:.17g},{:.17g}\n", m.label, x, n, level,
+                         side_text, lim.lower, lim.upper, lim.raw_lower, lim.raw_upper);
     } else {
       std::string note;
-      if (lim.raw_lower < 0 || lim.raw_upper > 1) note = fmt::format("clipped from [{:.4f}, {:.4f}]", lim.raw_lower, lim.raw_upper);
+      if (lim.raw_lower < 0 || lim.raw_upper > 1)
+        note = fmt::format("clipped from [{:.4f}, {:.4f}]", lim.raw_lower, lim.raw_upper);
       if (lim.upper == lim.lower) note += note.empty() ? "zero width" : "; zero width";
       out << fmt::format("  {:<{}}  {:>10}  {:>10}  {:>10}  {}\n", m.label, width, fmt_limit(lim.lower),
                          fmt_limit(lim.upper), fmt_limit(lim.upper - lim.lower), note);
@@ -226,8 +241,9 @@ int cmd_inspect(const std::string& path, std::ostream& out) {
                      cube.attr("title"), cube.attr("scenario_sha256"), cube.attr("seed"), cube.attr("shard"),
                      cube.complete() ? "yes" : "no");
   out << fmt::format("  axes: model {} x side {} x level {} x method {} x n {} ({}..{}) x p {} ({}..{})\n",
-                     cube.models.size(), cube.sides.size(), cube.levels.size(), cube.methods.size(), cube.n.size(),
-                     cube.n.front(), cube.n.back(), cube.p.size(), cube.p.front(), cube.p.back());
+                     cube.models.size(), cube.sides.size(), cube.levels.size(), cube.methods.size(),
+                     cube.n.size(), cube.n.front(), cube.n.back(), cube.p.size(), cube.p.front(),
+                     cube.p.back());
   out << "  methods:";
   for (const auto& m : cube.methods) out << ' ' << m;
   out << '\n';
@@ -243,9 +259,10 @@ int cmd_inspect(const std::string& path, std::ostream& out) {
 }  // namespace
 
 int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
-  CLI::App app{fmt::format("covergrid {} — how confidence intervals for a proportion really behave: exact\n"
-                           "coverage, tail misses and width of interval methods over grids of n and p.",
-                           tool_version)};
+  CLI::App app{
+      fmt::format("covergrid {} — how confidence intervals for a proportion really behave: exact\n"
+                  "coverage, tail misses and width of interval methods over grids of n and p.",
+                  tool_version)};
   app.require_subcommand(1);
   app.set_version_flag("--version", std::string(tool_version));
   app.footer(std::string("\n") + output::coverage_caution);
@@ -253,7 +270,8 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   std::string scenario_file;
   int threads = 0;
   bool quiet = false, overwrite = false;
-  auto* run = app.add_subcommand("run", "Evaluate every method on a scenario's grid; write the cube and tables");
+  auto* run =
+      app.add_subcommand("run", "Evaluate every method on a scenario's grid; write the cube and tables");
   run->add_option("SCENARIO", scenario_file, "scenario file (TOML); without it, the bundled demo");
   run->add_option("--threads", threads, "worker threads (default: all cores)")->check(CLI::PositiveNumber);
   run->add_flag("--quiet", quiet, "no progress display");
@@ -264,12 +282,14 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   std::string side = "two-sided";
   std::vector<std::string> method_texts;
   bool csv = false;
-  auto* intervals = app.add_subcommand("intervals", "Every method's limits for observed data X successes in N trials");
+  auto* intervals =
+      app.add_subcommand("intervals", "Every method's limits for observed data X successes in N trials");
   intervals->add_option("X", x, "observed successes")->required();
   intervals->add_option("N", n, "trials")->required();
   intervals->add_option("--level", level, "confidence level in (0, 1) (default 0.95)");
   intervals->add_option("--side", side, "two-sided, lower-bound or upper-bound (default two-sided)");
-  intervals->add_option("--method", method_texts, "method id, optionally id:key=value,... (repeatable; default all)");
+  intervals->add_option("--method", method_texts,
+                        "method id, optionally id:key=value,... (repeatable; default all)");
   intervals->add_flag("--csv", csv, "CSV output with raw (unclipped) limits");
 
   app.add_subcommand("methods", "The catalog of interval methods: ids, parameters, references");
@@ -278,6 +298,19 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   auto* inspect = app.add_subcommand("inspect", "What a cube holds and its headline figures");
   inspect->add_option("CUBE", cube_path, "cube file (.h5)")->required();
 
+  if (!args.empty() && !args[0].empty() && args[0][0] != '-') {
+    std::string names;
+    bool known = false;
+    for (const CLI::App* sub : app.get_subcommands([](CLI::App*) { return true; })) {
+      known |= sub->get_name() == args[0];
+      names += (names.empty() ? "" : ", ") + sub->get_name();
+    }
+    if (!known) {
+      err << fmt::format("covergrid: unknown command '{}' (commands: {})\n(see covergrid --help)\n", args[0],
+                         names);
+      return exit_bad_input;
+    }
+  }
   try {
     std::vector<std::string> reversed(args.rbegin(), args.rend());
     app.parse(reversed);

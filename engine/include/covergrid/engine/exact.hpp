@@ -22,9 +22,9 @@ CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& wind
 double coverage_by_enumeration(const IntervalTable& table, double p);
 
 struct InfimumResult {
-  double value = 0;    // inf of coverage over [p_lo, p_hi]
-  double where = 0;    // the p at which it is approached
-  int from = 0;        // -1: approached from below `where`, +1: from above, 0: attained there
+  double value = 0;      // inf of coverage over [p_lo, p_hi]
+  double where = 0;      // the p at which it is approached
+  int from = 0;          // -1: approached from below `where`, +1: from above, 0: attained there
   bool refined = false;  // a non-contiguous covered set was met and searched densely
 };
 

@@ -11,18 +11,17 @@ namespace covergrid::engine {
 
 struct IntervalTable {
   int n = 0;
-  bool supported = true;     // false: the method does not define this side
+  bool supported = true;      // false: the method does not define this side
   std::vector<double> lower;  // clipped, size n + 1
   std::vector<double> upper;
   std::vector<double> width;       // upper - lower
   std::vector<double> degenerate;  // 1.0 where upper == lower, else 0.0
   std::vector<double> overshoot;   // 1.0 where raw lower < 0 or raw upper > 1
-  bool monotone = false;  // lower and upper both non-decreasing in x
+  bool monotone = false;           // lower and upper both non-decreasing in x
 };
 
 /// Builds the table; a method that does not support `side` gives an
 /// unsupported table (its metrics are NaN).
-IntervalTable build_table(const methods::IntervalMethod& method, int n, double level,
-                          methods::Side side);
+IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side);
 
 }  // namespace covergrid::engine

@@ -1,6 +1,7 @@
 #pragma once
 /// Running a scenario: plan, resume, parallel evaluation, summaries.
 #include "covergrid/engine/scenario.hpp"
+#include "covergrid/engine/plan.hpp"
 #include "covergrid/engine/sink.hpp"
 
 #include <atomic>
@@ -15,6 +16,9 @@ struct RunOptions {
   std::function<void(std::size_t, std::size_t)> progress;
   /// When set and true, the run stops at the next batch boundary.
   const std::atomic<bool>* stop = nullptr;
+  /// Cells per chunk for the plan (make_plan's target). Every run of one
+  /// output must use the same value; only tests change it.
+  std::size_t chunk_cells = plan_target_cells;
 };
 
 struct RunReport {
@@ -33,8 +37,7 @@ ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk);
 
 /// Grid statistics of one (combo, n) row from its p values; `nominal` is the
 /// level. Writes Stat 0 .. grid_stat_count-1 into stats[0 .. grid_stat_count-1].
-void grid_stats(const double* coverage, const double* width, const double* miss_low,
-                const double* miss_high, const std::vector<double>& p, double nominal,
-                double* stats);
+void grid_stats(const double* coverage, const double* width, const double* miss_low, const double* miss_high,
+                const std::vector<double>& p, double nominal, double* stats);
 
 }  // namespace covergrid::engine

@@ -37,9 +37,9 @@ struct Scenario {
   std::string cube_path;      // resolved against the scenario file's folder
   std::string tables_prefix;  // idem; empty = no tables
 
-  std::string source_name;    // file name for messages ("<bundled demo>" etc.)
-  std::string source_text;    // the full scenario text, stored in the cube
-  std::string sha256;         // of source_text
+  std::string source_name;  // file name for messages ("<bundled demo>" etc.)
+  std::string source_text;  // the full scenario text, stored in the cube
+  std::string sha256;       // of source_text
 };
 
 /// Number of (side, level, method) combinations; their order everywhere is

@@ -18,9 +18,8 @@
 
 namespace covergrid::methods {
 
-using math_policy =
-    boost::math::policies::policy<boost::math::policies::promote_double<false>,
-                                  boost::math::policies::promote_float<false>>;
+using math_policy = boost::math::policies::policy<boost::math::policies::promote_double<false>,
+                                                  boost::math::policies::promote_float<false>>;
 
 /// Standard normal quantile of the upper tail: z with P(Z > z) = tail.
 double z_upper(double tail);

@@ -14,12 +14,12 @@
 namespace covergrid::methods {
 
 struct MethodInfo {
-  std::string id;            // lower-case words joined by hyphens
-  std::string name;          // display name
+  std::string id;    // lower-case words joined by hyphens
+  std::string name;  // display name
   Family family;
   std::vector<ParamSpec> params;
-  std::string reference;     // published reference
-  std::string definition;    // one-line definition, including one-sided forms
+  std::string reference;   // published reference
+  std::string definition;  // one-line definition, including one-sided forms
 };
 
 /// A catalog entry: metadata plus a factory taking fully resolved parameters.
@@ -53,8 +53,7 @@ struct MethodInstance {
 };
 
 /// Builds an instance; an empty label means default_label().
-MethodInstance make_instance(std::string_view id, const ParamValues& given,
-                             std::string label = {});
+MethodInstance make_instance(std::string_view id, const ParamValues& given, std::string label = {});
 
 // Entry points of the method files (one per file; listed in registry.cpp).
 MethodEntry wald_entry();

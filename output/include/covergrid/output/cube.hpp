@@ -85,10 +85,10 @@ class CubeReader {
   /// One exact metric over p for a single (model, side, level, method, n).
   std::vector<double> exact_row(const std::string& metric, std::size_t model, std::size_t side,
                                 std::size_t level, std::size_t method, std::size_t n_index) const;
-  std::size_t summary_index(std::size_t model, std::size_t side, std::size_t level,
-                            std::size_t method, std::size_t n_index) const {
-    return (((model * sides.size() + side) * levels.size() + level) * methods.size() + method) *
-               n.size() + n_index;
+  std::size_t summary_index(std::size_t model, std::size_t side, std::size_t level, std::size_t method,
+                            std::size_t n_index) const {
+    return (((model * sides.size() + side) * levels.size() + level) * methods.size() + method) * n.size() +
+           n_index;
   }
 
  private:

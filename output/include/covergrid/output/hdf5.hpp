@@ -56,7 +56,7 @@ void check(herr_t status, const std::string& what);
 
 class File {
  public:
-  static File create(const std::string& path);       // truncates
+  static File create(const std::string& path);  // truncates
   static File open(const std::string& path, bool writable);
   hid_t id() const { return h_.get(); }
   const std::string& path() const { return path_; }
@@ -75,8 +75,8 @@ bool exists(hid_t parent, const std::string& path);
 Handle open_dataset(hid_t parent, const std::string& name);
 
 /// A chunked, shuffled and deflated float64 dataset filled with NaN.
-Handle create_double_dataset(hid_t parent, const std::string& name,
-                             const std::vector<hsize_t>& dims, const std::vector<hsize_t>& chunk);
+Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
+                             const std::vector<hsize_t>& chunk);
 /// A 1-D dataset of doubles / int64 / uint8 / UTF-8 strings, written at once.
 Handle write_vector(hid_t parent, const std::string& name, const std::vector<double>& v);
 Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::int64_t>& v);
@@ -86,12 +86,12 @@ Handle write_vector(hid_t parent, const std::string& name, const std::vector<std
 /// Dataset shape.
 std::vector<hsize_t> shape(hid_t dataset);
 /// Hyperslab I/O of doubles (start/count per dimension, data in C order).
-void write_block(hid_t dataset, const std::vector<hsize_t>& start,
-                 const std::vector<hsize_t>& count, const double* data);
-void read_block(hid_t dataset, const std::vector<hsize_t>& start,
-                const std::vector<hsize_t>& count, double* data);
-void write_block_u8(hid_t dataset, const std::vector<hsize_t>& start,
-                    const std::vector<hsize_t>& count, const std::uint8_t* data);
+void write_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                 const double* data);
+void read_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                double* data);
+void write_block_u8(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                    const std::uint8_t* data);
 
 std::vector<double> read_doubles(hid_t parent, const std::string& name);
 std::vector<std::int64_t> read_int64s(hid_t parent, const std::string& name);

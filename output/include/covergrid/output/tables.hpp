@@ -12,12 +12,12 @@ namespace covergrid::output {
 struct RankingRow {
   std::size_t model, side, level, method;
   int rank = 0;
-  double worst_inf = 0;       // min over n of the continuous infimum
+  double worst_inf = 0;  // min over n of the continuous infimum
   std::int64_t worst_inf_n = 0;
-  double mean_coverage = 0;   // mean over n of the exact uniform mean coverage
-  double rms_deviation = 0;   // mean over n of the grid RMS deviation from nominal
-  double share_below = 0;     // mean over n of the share of grid p below nominal
-  double mean_width = 0;      // mean over n of the grid mean width
+  double mean_coverage = 0;  // mean over n of the exact uniform mean coverage
+  double rms_deviation = 0;  // mean over n of the grid RMS deviation from nominal
+  double share_below = 0;    // mean over n of the share of grid p below nominal
+  double mean_width = 0;     // mean over n of the grid mean width
 };
 
 /// Ranking per (model, side, level): methods ordered by mean RMS deviation of

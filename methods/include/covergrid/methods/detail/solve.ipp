@@ -16,8 +16,8 @@ double solve_bracketed(F f, double lo, double hi, const char* what, bool clamp) 
     return std::fabs(flo) < std::fabs(fhi) ? lo : hi;
   }
   std::uintmax_t iterations = root_max_iterations;
-  const auto r = boost::math::tools::toms748_solve(f, lo, hi, flo, fhi, root_tolerance{},
-                                                   iterations, math_policy{});
+  const auto r =
+      boost::math::tools::toms748_solve(f, lo, hi, flo, fhi, root_tolerance{}, iterations, math_policy{});
   if (iterations >= root_max_iterations)
     throw NumericalError(std::string(what) + ": root finder hit its iteration limit");
   return 0.5 * (r.first + r.second);

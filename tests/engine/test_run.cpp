@@ -1,0 +1,124 @@
+// The run loop: every cell computed exactly once, results independent of the
+// thread count, and a stopped run resumed to the same result.
+#include "support.hpp"
+
+#include "covergrid/engine/plan.hpp"
+#include "covergrid/engine/run.hpp"
+
+#include <catch2/catch.hpp>
+
+#include <atomic>
+#include <cstring>
+
+namespace e = covergrid::engine;
+using covergrid::test::MemorySink;
+using covergrid::test::scenario_from;
+
+namespace {
+
+const char* grid_text = R"(
+title = "run-loop test"
+[grid]
+n = { from = 1, to = 40 }
+p = { from = 0.0, to = 1.0, count = 301 }
+levels = [0.9, 0.95]
+sides = ["two-sided", "lower-bound"]
+[[method]]
+id = "wald"
+[[method]]
+id = "clopper-pearson"
+[[method]]
+id = "blaker"
+[[method]]
+id = "bayes-hpd"
+a = 0.5
+b = 0.5
+)";
+
+bool same_bits(const std::vector<double>& a, const std::vector<double>& b) {
+  return a.size() == b.size() && std::memcmp(a.data(), b.data(), a.size() * sizeof(double)) == 0;
+}
+
+}  // namespace
+
+TEST_CASE("the plan covers every cell exactly once", "[engine][plan]") {
+  const auto s = scenario_from(grid_text);
+  for (std::size_t target : {1u, 7u, 301u, 2048u, 100000u}) {
+    const auto plan = e::make_plan(s, target);
+    std::vector<int> seen(s.n.size() * s.p.size(), 0);
+    for (std::size_t k = 0; k < plan.chunks.size(); ++k) {
+      const auto& c = plan.chunks[k];
+      CHECK(c.id == k);
+      for (std::size_t i = 0; i < c.n_count; ++i)
+        for (std::size_t j = 0; j < c.p_count; ++j) ++seen[(c.n_begin + i) * s.p.size() + c.p_begin + j];
+    }
+    INFO("target " << target);
+    CHECK(std::all_of(seen.begin(), seen.end(), [](int v) { return v == 1; }));
+  }
+}
+
+TEST_CASE("results do not depend on the thread count", "[engine][determinism]") {
+  const auto s = scenario_from(grid_text);
+  const auto plan = e::make_plan(s);
+  MemorySink one(s, plan), two(s, plan);
+  e::RunOptions o1, o2;
+  o1.threads = 1;
+  o2.threads = 2;
+  e::run_scenario(s, one, o1);
+  e::run_scenario(s, two, o2);
+  CHECK(one.finished);
+  CHECK(two.finished);
+  for (std::size_t k = 0; k < e::metric_count; ++k) CHECK(same_bits(one.exact[k], two.exact[k]));
+  for (std::size_t k = 0; k < e::stat_count; ++k) CHECK(same_bits(one.stats[k], two.stats[k]));
+  // Blaker is two-sided only: its lower-bound cells are NaN, the rest are not.
+  const std::size_t combos = e::combo_count(s);
+  std::size_t nan_rows = 0;
+  for (std::size_t c = 0; c < combos; ++c)
+    if (std::isnan(one.exact[0][one.at(c, 0, 0) * s.p.size()])) ++nan_rows;
+  CHECK(nan_rows == s.levels.size());  // blaker x lower-bound x each level
+}
+
+TEST_CASE("a stopped run resumes to the same result", "[engine][resume]") {
+  const auto s = scenario_from(grid_text);
+  const auto plan = e::make_plan(s, 128);  // many small chunks
+  MemorySink fresh(s, plan), resumed(s, plan);
+  e::RunOptions o;
+  o.threads = 2;
+  o.chunk_cells = 128;
+  e::run_scenario(s, fresh, o);
+
+  std::atomic<bool> stop{false};
+  o.stop = &stop;
+  o.progress = [&](std::size_t, std::size_t) { stop = true; };  // stop after the first batch
+  const auto first = e::run_scenario(s, resumed, o);
+  CHECK(first.interrupted);
+  CHECK_FALSE(resumed.finished);
+  CHECK(first.chunks_computed < first.chunks_total);
+  stop = false;
+  o.progress = nullptr;
+  const auto second = e::run_scenario(s, resumed, o);
+  CHECK_FALSE(second.interrupted);
+  CHECK(second.chunks_resumed == first.chunks_computed);
+  CHECK(second.chunks_resumed + second.chunks_computed == second.chunks_total);
+  CHECK(resumed.finished);
+  for (std::size_t k = 0; k < e::metric_count; ++k) CHECK(same_bits(fresh.exact[k], resumed.exact[k]));
+  for (std::size_t k = 0; k < e::stat_count; ++k) CHECK(same_bits(fresh.stats[k], resumed.stats[k]));
+}
+
+TEST_CASE("grid statistics follow their definitions", "[engine][summary]") {
+  const std::vector<double> p = {0.1, 0.2, 0.3, 0.4};
+  const double cov[] = {0.97, 0.93, 0.95, 0.91};
+  const double width[] = {0.1, 0.2, 0.3, 0.4};
+  const double lo[] = {0.01, 0.03, 0.02, 0.05};
+  const double hi[] = {0.02, 0.04, 0.03, 0.04};
+  double st[e::grid_stat_count];
+  e::grid_stats(cov, width, lo, hi, p, 0.95, st);
+  CHECK(st[e::index(e::Stat::mean_coverage)] == Approx(0.94));
+  CHECK(st[e::index(e::Stat::min_coverage)] == 0.91);
+  CHECK(st[e::index(e::Stat::min_coverage_p)] == 0.4);
+  CHECK(st[e::index(e::Stat::rms_deviation)] == Approx(std::sqrt((4e-4 + 4e-4 + 0 + 16e-4) / 4)));
+  CHECK(st[e::index(e::Stat::share_below)] == 0.5);
+  CHECK(st[e::index(e::Stat::mean_width)] == Approx(0.25));
+  CHECK(st[e::index(e::Stat::mean_miss_low)] == Approx(0.0275));
+  CHECK(st[e::index(e::Stat::mean_miss_high)] == Approx(0.0325));
+}

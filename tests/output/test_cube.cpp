@@ -1,0 +1,215 @@
+// The cube against the contract of design section 8, read back with the raw
+// HDF5 API; its values bit-identical to an in-memory run; refusal of other
+// scenarios' outputs; damaged and foreign files rejected with InputError.
+#include "support.hpp"
+
+#include "covergrid/engine/error.hpp"
+#include "covergrid/engine/run.hpp"
+#include "covergrid/output/cube.hpp"
+#include "covergrid/output/hdf5.hpp"
+#include "covergrid/output/tables.hpp"
+#include "covergrid/version.hpp"
+
+#include <catch2/catch.hpp>
+#include <hdf5_hl.h>
+
+#include <cstring>
+#include <filesystem>
+#include <fstream>
+
+namespace e = covergrid::engine;
+namespace o = covergrid::output;
+namespace fs = std::filesystem;
+using covergrid::test::MemorySink;
+using covergrid::test::scenario_from;
+using covergrid::test::ScratchDir;
+
+namespace {
+
+const char* text = R"(
+title = "cube contract"
+seed = 77
+[grid]
+n = [3, 10, 31]
+p = { from = 0.02, to = 0.98, count = 49 }
+levels = [0.9, 0.95]
+sides = ["two-sided", "upper-bound"]
+[[method]]
+id = "wilson"
+[[method]]
+id = "blaker"
+[[method]]
+id = "jeffreys"
+boundary = false
+[output]
+cube = "c.h5"
+tables = "c"
+)";
+
+void run_to_cube(const e::Scenario& s) {
+  const auto state = o::inspect_output(s, false);
+  const auto plan = e::make_plan(s);
+  o::CubeWriter w(s, plan, state == o::OutputState::resumed);
+  e::run_scenario(s, w);
+}
+
+std::vector<double> read_all(hid_t file, const std::string& name, std::vector<hsize_t>& dims) {
+  o::Handle d = o::open_dataset(file, name);
+  dims = o::shape(d.get());
+  std::size_t total = 1;
+  for (auto v : dims) total *= v;
+  std::vector<double> out(total);
+  o::read_block(d.get(), std::vector<hsize_t>(dims.size(), 0), dims, out.data());
+  return out;
+}
+
+}  // namespace
+
+TEST_CASE("the cube holds what the contract says", "[output][cube]") {
+  ScratchDir dir("cube");
+  const auto s = scenario_from(text, dir.path().string());
+  run_to_cube(s);
+  REQUIRE(fs::exists(s.cube_path));
+  CHECK_FALSE(fs::exists(o::partial_path(s.cube_path)));
+
+  o::File f = o::File::open(s.cube_path, false);
+  const hid_t root = f.id();
+  CHECK(o::get_attr_string(root, "format") == "covergrid-cube");
+  CHECK(o::get_attr_int(root, "format_version") == covergrid::cube_format_version);
+  CHECK(o::get_attr_string(root, "tool_version") == covergrid::tool_version);
+  CHECK(o::get_attr_string(root, "scenario") == s.source_text);
+  CHECK(o::get_attr_string(root, "scenario_sha256") == s.sha256);
+  CHECK(o::get_attr_int(root, "seed") == 77);
+  CHECK(o::get_attr_string(root, "created_utc").size() == 20);
+  CHECK(o::get_attr_string(root, "shard") == "all");
+  CHECK(o::get_attr_int(root, "complete") == 1);
+
+  CHECK(o::read_strings(root, "/axes/model") == std::vector<std::string>{"binomial"});
+  CHECK(o::read_strings(root, "/axes/side") == std::vector<std::string>{"two-sided", "upper-bound"});
+  CHECK(o::read_doubles(root, "/axes/level") == s.levels);
+  CHECK(o::read_strings(root, "/axes/method") ==
+        std::vector<std::string>{"wilson", "blaker", "jeffreys(boundary=false)"});
+  CHECK(o::read_int64s(root, "/axes/n") == std::vector<std::int64_t>{3, 10, 31});
+  CHECK(o::read_doubles(root, "/axes/p") == s.p);
+
+  o::Handle jg = o::open_group(root, "/methods/jeffreys(boundary=false)");
+  CHECK(o::get_attr_string(jg.get(), "id") == "jeffreys");
+  CHECK(o::get_attr_string(jg.get(), "param.boundary") == "false");
+  CHECK_FALSE(o::get_attr_string(jg.get(), "reference").empty());
+
+  // The in-memory run of the same scenario, to compare values bit for bit.
+  const auto plan = e::make_plan(s);
+  MemorySink mem(s, plan);
+  e::run_scenario(s, mem);
+
+  const std::vector<hsize_t> want = {1, 2, 2, 3, 3, 49};
+  for (std::size_t k = 0; k < e::metric_count; ++k) {
+    const std::string name = "/exact/" + std::string(e::metric_names[k]);
+    INFO(name);
+    std::vector<hsize_t> dims;
+    const auto values = read_all(root, name, dims);
+    CHECK(dims == want);
+    o::Handle d = o::open_dataset(root, name);
+    // Every axis scale is attached to its dimension and the dimension is labelled.
+    for (unsigned i = 0; i < 6; ++i) {
+      o::Handle scale = o::open_dataset(root, std::string("/axes/") + o::axis_names[i]);
+      CHECK(H5DSis_attached(d.get(), scale.get(), i) > 0);
+      char label[32] = {};
+      H5DSget_label(d.get(), i, label, sizeof label);
+      CHECK(std::string(label) == o::axis_names[i]);
+    }
+    // Values: the cube is [model][combo][n][p]; so is the memory sink here.
+    CHECK(std::memcmp(values.data(), mem.exact[k].data(), values.size() * sizeof(double)) == 0);
+  }
+  // NaN exactly where a method does not define a side (blaker, upper-bound).
+  {
+    std::vector<hsize_t> dims;
+    const auto cov = read_all(root, "/exact/coverage", dims);
+    const std::size_t per_method = 3 * 49;
+    for (std::size_t side = 0; side < 2; ++side)
+      for (std::size_t level = 0; level < 2; ++level)
+        for (std::size_t method = 0; method < 3; ++method) {
+          const std::size_t at = ((side * 2 + level) * 3 + method) * per_method;
+          const bool undefined = side == 1 && method == 1;
+          for (std::size_t k = 0; k < per_method; ++k) CHECK(std::isnan(cov[at + k]) == undefined);
+        }
+  }
+  for (std::size_t k = 0; k < e::stat_count; ++k) {
+    const std::string name = "/summary/" + std::string(e::stat_names[k]);
+    INFO(name);
+    std::vector<hsize_t> dims;
+    const auto values = read_all(root, name, dims);
+    CHECK(dims == std::vector<hsize_t>{1, 2, 2, 3, 3});
+    CHECK(std::memcmp(values.data(), mem.stats[k].data(), values.size() * sizeof(double)) == 0);
+  }
+  const auto done = o::read_u8s(root, "/progress/done");
+  CHECK(std::all_of(done.begin(), done.end(), [](std::uint8_t v) { return v == 1; }));
+}
+
+TEST_CASE("existing outputs are respected", "[output][cube]") {
+  ScratchDir dir("respect");
+  const auto s = scenario_from(text, dir.path().string());
+  run_to_cube(s);
+  CHECK(o::inspect_output(s, false) == o::OutputState::up_to_date);
+  // A different scenario on the same cube path is refused, and the cube is untouched.
+  const auto other =
+      scenario_from(std::string(text) + "\n# a comment changes the checksum\n", dir.path().string());
+  const auto before = fs::last_write_time(s.cube_path);
+  CHECK_THROWS_AS(o::inspect_output(other, false), covergrid::InputError);
+  CHECK(fs::last_write_time(s.cube_path) == before);
+  CHECK(o::inspect_output(other, true) == o::OutputState::fresh);
+  // An unfinished run of another scenario is refused too.
+  fs::copy_file(s.cube_path, o::partial_path(s.cube_path));
+  fs::remove(s.cube_path);
+  CHECK_THROWS_AS(o::inspect_output(other, false), covergrid::InputError);
+  CHECK(o::inspect_output(s, false) == o::OutputState::resumed);
+}
+
+TEST_CASE("foreign and damaged files are rejected as bad input", "[output][cube][bad-input]") {
+  ScratchDir dir("foreign");
+  const std::string text_file = dir.file("notes.h5");
+  std::ofstream(text_file) << "not an HDF5 file\n";
+  CHECK_THROWS_WITH(o::CubeReader(text_file), Catch::Contains("is not an HDF5 file"));
+  CHECK_THROWS_WITH(o::CubeReader(dir.file("missing.h5")), Catch::Contains("does not exist"));
+  {
+    o::File f = o::File::create(dir.file("plain.h5"));
+    o::set_attr(f.id(), "title", std::string("someone else's"));
+  }
+  CHECK_THROWS_WITH(o::CubeReader(dir.file("plain.h5")), Catch::Contains("not a covergrid cube"));
+  {
+    o::File f = o::File::create(dir.file("future.h5"));
+    o::set_attr(f.id(), "format", std::string("covergrid-cube"));
+    o::set_attr(f.id(), "format_version", std::int64_t{99});
+  }
+  CHECK_THROWS_WITH(o::CubeReader(dir.file("future.h5")), Catch::Contains("format version 99"));
+  // A run whose cube path holds a foreign file refuses to touch it.
+  auto s = scenario_from(text, dir.path().string());
+  s.cube_path = text_file;
+  CHECK_THROWS_AS(o::inspect_output(s, false), covergrid::InputError);
+}
+
+TEST_CASE("summary tables are written from the cube", "[output][tables]") {
+  ScratchDir dir("tables");
+  const auto s = scenario_from(text, dir.path().string());
+  run_to_cube(s);
+  o::CubeReader cube(s.cube_path);
+  const auto paths = o::write_tables(cube, s.tables_prefix);
+  REQUIRE(paths.size() == 3);
+  for (const auto& p : paths) CHECK(fs::file_size(p) > 100);
+  std::ifstream csv(paths[0]);
+  std::string header, row;
+  std::getline(csv, header);
+  CHECK(header.rfind("model,side,level,method,n,mean_coverage", 0) == 0);
+  std::size_t rows = 0;
+  while (std::getline(csv, row)) ++rows;
+  // 2 sides x 2 levels x 3 methods x 3 n, less blaker's undefined upper-bound rows.
+  CHECK(rows == 2 * 2 * 3 * 3 - 2 * 3);
+  const auto rank = o::ranking(cube);
+  CHECK(rank.size() == 2 * 3 + 2 * 2);
+  const std::string md = [&] {
+    std::ifstream in(paths[2]);
+    return std::string(std::istreambuf_iterator<char>(in), {});
+  }();
+  CHECK(md.find("long-run property") != std::string::npos);
+  CHECK(md.find("qualified statistician") != std::string::npos);
+}

@@ -1,0 +1,120 @@
+// The scenario loader: the grid forms of the schema, defaults, and every
+// malformed file in tests/scenarios/bad/ (each names its expected line and
+// message in its first line, "# expect: LINE | TEXT"; LINE 0 = no line).
+#include "support.hpp"
+
+#include "covergrid/engine/error.hpp"
+#include "covergrid/scenarios/loader.hpp"
+
+#include <catch2/catch.hpp>
+#include <fmt/format.h>
+
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+
+namespace fs = std::filesystem;
+using covergrid::test::scenario_from;
+
+TEST_CASE("grid forms expand as documented", "[scenarios]") {
+  const auto s = scenario_from(R"(
+title = "forms"
+seed = 11
+[grid]
+n = { from = 10, to = 1000, count = 5, spacing = "log" }
+p = { from = 0.01, to = 0.99, count = 3, spacing = "logit" }
+levels = [0.99, 0.9]
+sides = ["upper-bound", "two-sided"]
+[[method]]
+id = "jeffreys"
+boundary = false
+label = "jeffreys-plain"
+[[method]]
+id = "bayes-hpd"
+a = 0.5
+b = 2
+)",
+                               "/data/run");
+  CHECK(s.title == "forms");
+  CHECK(s.seed == 11);
+  CHECK(s.n == std::vector<int>{10, 32, 100, 316, 1000});
+  REQUIRE(s.p.size() == 3);
+  CHECK(s.p[0] == 0.01);
+  CHECK(s.p[1] == Approx(0.5).margin(1e-15));
+  CHECK(s.p[2] == 0.99);
+  CHECK(s.levels == std::vector<double>{0.9, 0.99});
+  CHECK(s.sides == std::vector<covergrid::methods::Side>{covergrid::methods::Side::two_sided,
+                                                         covergrid::methods::Side::upper_bound});
+  REQUIRE(s.methods.size() == 2);
+  CHECK(s.methods[0].label == "jeffreys-plain");
+  CHECK(s.methods[1].label == "bayes-hpd(a=0.5,b=2)");
+  CHECK(s.models.size() == 1);
+  CHECK(s.cube_path == "/data/run/test.h5");
+  CHECK(s.tables_prefix == "/data/run/test");
+  CHECK(s.sha256.size() == 64);
+
+  const auto t = scenario_from(R"(
+[grid]
+n = { from = 5, to = 20, step = 5 }
+p = { from = 0.1, to = 0.5, step = 0.1 }
+levels = 0.95
+[[method]]
+id = "wald"
+[output]
+cube = "sub/x.h5"
+tables = ""
+)",
+                               "base");
+  CHECK(t.n == std::vector<int>{5, 10, 15, 20});
+  REQUIRE(t.p.size() == 5);
+  CHECK(t.p.back() == Approx(0.5));
+  CHECK(t.sides == std::vector<covergrid::methods::Side>{covergrid::methods::Side::two_sided});
+  CHECK(t.cube_path == "base/sub/x.h5");
+  CHECK(t.tables_prefix.empty());
+  CHECK(t.exact);
+}
+
+TEST_CASE("the bundled demo and example scenarios load", "[scenarios]") {
+  const auto demo = covergrid::scenarios::load_scenario_text(covergrid::scenarios::bundled_demo_text(),
+                                                             "<bundled demo>", "");
+  CHECK_FALSE(demo.title.empty());
+  CHECK(demo.methods.size() >= 5);
+  std::size_t count = 0;
+  for (const auto& entry : fs::directory_iterator(COVERGRID_SCENARIO_DIR)) {
+    if (entry.path().extension() != ".toml") continue;
+    INFO(entry.path());
+    CHECK_NOTHROW(covergrid::scenarios::load_scenario_file(entry.path().string()));
+    ++count;
+  }
+  CHECK(count >= 3);
+}
+
+TEST_CASE("every malformed scenario names its line and key", "[scenarios][bad-input]") {
+  const fs::path dir = fs::path(COVERGRID_TEST_DIR) / "scenarios" / "bad";
+  std::size_t count = 0;
+  for (const auto& entry : fs::directory_iterator(dir)) {
+    if (entry.path().extension() != ".toml") continue;
+    std::ifstream in(entry.path());
+    std::string first;
+    std::getline(in, first);
+    REQUIRE(first.rfind("# expect: ", 0) == 0);
+    const auto bar = first.find(" | ");
+    const int line = std::stoi(first.substr(10, bar - 10));
+    const std::string text = first.substr(bar + 3);
+    const std::string where =
+        line > 0 ? fmt::format("{}:{}: ", entry.path().string(), line) : entry.path().string() + ": ";
+    INFO(entry.path().filename().string() << " expects \"" << where << "..." << text << "\"");
+    try {
+      covergrid::scenarios::load_scenario_file(entry.path().string());
+      FAIL("the file loaded without error");
+    } catch (const covergrid::InputError& e) {
+      const std::string msg = e.what();
+      INFO("message: " << msg);
+      CHECK(msg.rfind(where, 0) == 0);
+      CHECK(msg.find(text) != std::string::npos);
+    }
+    ++count;
+  }
+  CHECK(count >= 15);
+}

@@ -1,0 +1,105 @@
+#pragma once
+// Shared helpers for the tests: scratch folders, scenario text, an in-memory sink.
+#include "covergrid/engine/run.hpp"
+#include "covergrid/engine/sink.hpp"
+#include "covergrid/scenarios/loader.hpp"
+
+#include <filesystem>
+#include <map>
+#include <random>
+#include <string>
+#include <vector>
+
+namespace covergrid::test {
+
+/// A fresh, empty folder under the system temp dir, removed on destruction.
+class ScratchDir {
+ public:
+  explicit ScratchDir(const std::string& name) {
+    path_ = std::filesystem::temp_directory_path() /
+            ("covergrid-test-" + name + "-" + std::to_string(std::random_device{}()));
+    std::filesystem::remove_all(path_);
+    std::filesystem::create_directories(path_);
+  }
+  ~ScratchDir() {
+    std::error_code ec;
+    std::filesystem::remove_all(path_, ec);
+  }
+  const std::filesystem::path& path() const { return path_; }
+  std::string file(const std::string& name) const { return (path_ / name).string(); }
+
+ private:
+  std::filesystem::path path_;
+};
+
+/// Keeps every chunk and the grid statistics in memory, keyed by chunk id.
+class MemorySink final : public engine::ResultSink {
+ public:
+  MemorySink(const engine::Scenario& s, const engine::Plan& plan) : s_(s), plan_(plan) {
+    const std::size_t rows = s.models.size() * s.n.size();
+    const std::size_t combos = engine::combo_count(s);
+    for (auto& m : exact) m.assign(combos * rows * s.p.size(), 0.0);
+    for (auto& st : stats) st.assign(combos * rows, 0.0);
+    done.assign(plan.chunks.size(), 0);
+  }
+  std::vector<char> completed() override { return done; }
+  void write_chunk(const engine::ChunkResult& r) override {
+    const auto& c = r.spec;
+    for (std::size_t k = 0; k < engine::metric_count; ++k)
+      for (std::size_t cb = 0; cb < r.combos; ++cb)
+        for (std::size_t i = 0; i < c.n_count; ++i)
+          for (std::size_t j = 0; j < c.p_count; ++j)
+            exact[k][at(cb, c.model, c.n_begin + i) * s_.p.size() + c.p_begin + j] =
+                r.exact[k][(cb * c.n_count + i) * c.p_count + j];
+    if (r.has_row_stats)
+      for (std::size_t k = 0; k < r.row_stats.size(); ++k)
+        for (std::size_t cb = 0; cb < r.combos; ++cb)
+          for (std::size_t i = 0; i < c.n_count; ++i)
+            stats[engine::grid_stat_count + k][at(cb, c.model, c.n_begin + i)] =
+                r.row_stats[k][cb * c.n_count + i];
+    done[c.id] = 1;
+    ++chunks_written;
+  }
+  void checkpoint() override { ++checkpoints; }
+  void read_rows(engine::Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
+                 std::vector<double>& out) override {
+    const std::size_t combos = engine::combo_count(s_), P = s_.p.size();
+    out.assign(combos * n_count * P, 0.0);
+    for (std::size_t cb = 0; cb < combos; ++cb)
+      for (std::size_t i = 0; i < n_count; ++i)
+        for (std::size_t j = 0; j < P; ++j)
+          out[(cb * n_count + i) * P + j] = exact[engine::index(metric)][at(cb, model, n_begin + i) * P + j];
+  }
+  void write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,
+                        const std::vector<double>& st) override {
+    const std::size_t combos = engine::combo_count(s_);
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+      for (std::size_t cb = 0; cb < combos; ++cb)
+        for (std::size_t i = 0; i < n_count; ++i)
+          stats[k][at(cb, model, n_begin + i)] = st[(k * combos + cb) * n_count + i];
+  }
+  void finish() override { finished = true; }
+
+  /// Row index of (combo, model, n index) in the [model][combo][n] layout used here.
+  std::size_t at(std::size_t combo, std::size_t model, std::size_t n_index) const {
+    return (model * engine::combo_count(s_) + combo) * s_.n.size() + n_index;
+  }
+
+  std::array<std::vector<double>, engine::metric_count> exact;
+  std::array<std::vector<double>, engine::stat_count> stats;
+  std::vector<char> done;
+  std::size_t chunks_written = 0, checkpoints = 0;
+  bool finished = false;
+
+ private:
+  const engine::Scenario& s_;
+  const engine::Plan& plan_;
+};
+
+/// Loads scenario text (relative outputs resolve into `dir`).
+inline engine::Scenario scenario_from(const std::string& text, const std::string& dir = "",
+                                      const std::string& name = "test.toml") {
+  return scenarios::load_scenario_text(text, name, dir);
+}
+
+}  // namespace covergrid::test
