@@ -15,7 +15,32 @@ constexpr double nan = std::numeric_limits<double>::quiet_NaN();
 constexpr double endpoint_merge_tolerance = 1e-12;
 }  // namespace
 
-CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& window, double p) {
+namespace {
+
+/// Width mean and standard deviation over the window, accumulated around a
+/// shift (the width at the window's middle) so that the variance does not cancel.
+void width_moments(const double* width, const double* w, std::size_t size, CellMetrics& m) {
+  const double shift = width[size / 2];
+  double s1 = 0, s2 = 0;
+  for (std::size_t i = 0; i < size; ++i) {
+    const double d = width[i] - shift;
+    s1 += w[i] * d;
+    s2 += w[i] * d * d;
+  }
+  m[index(Metric::width)] = shift + s1;
+  m[index(Metric::width_sd)] = std::sqrt(std::max(0.0, s2 - s1 * s1));
+}
+
+double sparse_mass(const std::vector<int>& xs, const BinomialWindow& window) {
+  double sum = 0;
+  for (int x : xs)
+    if (x >= window.lo && x <= window.hi) sum += window.w[static_cast<std::size_t>(x - window.lo)];
+  return sum;
+}
+
+}  // namespace
+
+CellMetrics exact_metrics_scan(const IntervalTable& table, const BinomialWindow& window, double p) {
   CellMetrics m;
   if (!table.supported) {
     m.fill(nan);
@@ -23,33 +48,40 @@ CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& wind
   }
   const double* lower = table.lower.data() + window.lo;
   const double* upper = table.upper.data() + window.lo;
-  const double* width = table.width.data() + window.lo;
-  const double* degen = table.degenerate.data() + window.lo;
-  const double* over = table.overshoot.data() + window.lo;
   const double* w = window.w.data();
   const std::size_t size = window.w.size();
-  // Widths are accumulated around a shift (the width at the window's middle)
-  // so that the variance does not cancel.
-  const double shift = width[size / 2];
-  double cov = 0, below = 0, above = 0, wsum = 0, wsq = 0, deg = 0, ovs = 0;
+  double cov = 0, below = 0, above = 0;
   for (std::size_t i = 0; i < size; ++i) {
     const double wi = w[i];
-    const double d = width[i] - shift;
     cov += (lower[i] <= p && p <= upper[i]) ? wi : 0.0;
     below += upper[i] < p ? wi : 0.0;
     above += lower[i] > p ? wi : 0.0;
-    wsum += wi * d;
-    wsq += wi * d * d;
-    deg += wi * degen[i];
-    ovs += wi * over[i];
   }
   m[index(Metric::coverage)] = cov;
   m[index(Metric::miss_low)] = below;
   m[index(Metric::miss_high)] = above;
-  m[index(Metric::width)] = shift + wsum;
-  m[index(Metric::width_sd)] = std::sqrt(std::max(0.0, wsq - wsum * wsum));
-  m[index(Metric::degenerate)] = deg;
-  m[index(Metric::overshoot)] = ovs;
+  width_moments(table.width.data() + window.lo, w, size, m);
+  m[index(Metric::degenerate)] = sparse_mass(table.degenerate_x, window);
+  m[index(Metric::overshoot)] = sparse_mass(table.overshoot_x, window);
+  return m;
+}
+
+CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& window, double p) {
+  if (!table.supported || !table.monotone) return exact_metrics_scan(table, window, p);
+  CellMetrics m;
+  const double* lower = table.lower.data() + window.lo;
+  const double* upper = table.upper.data() + window.lo;
+  const std::size_t size = window.w.size();
+  // First x with U_x >= p and one past the last x with L_x <= p.
+  const std::size_t a = static_cast<std::size_t>(std::lower_bound(upper, upper + size, p) - upper);
+  const std::size_t b1 = static_cast<std::size_t>(std::upper_bound(lower, lower + size, p) - lower);
+  const double* cum = window.cum.data();
+  m[index(Metric::miss_low)] = cum[a];
+  m[index(Metric::coverage)] = b1 > a ? cum[b1] - cum[a] : 0.0;
+  m[index(Metric::miss_high)] = cum[size] - cum[std::max(a, b1)];
+  width_moments(table.width.data() + window.lo, window.w.data(), size, m);
+  m[index(Metric::degenerate)] = sparse_mass(table.degenerate_x, window);
+  m[index(Metric::overshoot)] = sparse_mass(table.overshoot_x, window);
   return m;
 }
 

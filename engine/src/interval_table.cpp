@@ -24,6 +24,8 @@ IntervalTable build_table(const methods::IntervalMethod& method, int n, double l
     t.width[i] = lim.upper - lim.lower;
     t.degenerate[i] = lim.upper == lim.lower ? 1.0 : 0.0;
     t.overshoot[i] = (lim.raw_lower < 0.0 || lim.raw_upper > 1.0) ? 1.0 : 0.0;
+    if (t.degenerate[i] != 0.0) t.degenerate_x.push_back(x);
+    if (t.overshoot[i] != 0.0) t.overshoot_x.push_back(x);
     if (x > 0 && (t.lower[i] < t.lower[i - 1] || t.upper[i] < t.upper[i - 1])) t.monotone = false;
   }
   return t;

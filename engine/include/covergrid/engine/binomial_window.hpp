@@ -20,8 +20,9 @@ struct BinomialWindow {
   int lo = 0;             // first x in the window
   int hi = -1;            // last x in the window
   std::vector<double> w;  // w[x - lo] = P(X = x)
+  std::vector<double> cum;  // cum[i] = w[0] + ... + w[i-1]; size w.size() + 1
 
-  /// Fills the window for Bin(n, p); reuses the storage.
+  /// Fills the window (and its running sums) for Bin(n, p); reuses the storage.
   void fill(int n, double p);
 };
 

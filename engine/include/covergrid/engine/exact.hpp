@@ -15,7 +15,16 @@ using CellMetrics = std::array<double, metric_count>;
 
 /// Every metric of `table` at true proportion p, from the window of Bin(n, p).
 /// Coverage uses the closed interval [L, U]. An unsupported table gives NaN.
+/// For a table whose limits are non-decreasing in x (checked per table, never
+/// assumed) the covered set is the run a..b found by binary search, and
+/// coverage and misses come from the window's running sums; other tables are
+/// scanned x by x (exact_metrics_scan). Width moments are one vectorisable
+/// pass; degenerate and overshoot sum over the few x where they occur.
 CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& window, double p);
+
+/// The same metrics by the plain scan over every x of the window, whatever
+/// the table's shape; the tests hold exact_metrics to it.
+CellMetrics exact_metrics_scan(const IntervalTable& table, const BinomialWindow& window, double p);
 
 /// Exact coverage at p by direct summation over all x = 0..n (no window):
 /// the slow independent path the tests compare against.

@@ -17,6 +17,8 @@ struct IntervalTable {
   std::vector<double> width;       // upper - lower
   std::vector<double> degenerate;  // 1.0 where upper == lower, else 0.0
   std::vector<double> overshoot;   // 1.0 where raw lower < 0 or raw upper > 1
+  std::vector<int> degenerate_x;   // the x where degenerate is 1 (usually few)
+  std::vector<int> overshoot_x;    // the x where overshoot is 1
   bool monotone = false;           // lower and upper both non-decreasing in x
 };
 

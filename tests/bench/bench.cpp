@@ -1,0 +1,193 @@
+// covergrid-bench: performance figures as ratios measured in one run
+// (scripts/bench). Never used as a test: nothing here asserts on time.
+//
+//   exact-scaling  per-cell cost at n = 1000 and n = 100000 (tables prebuilt)
+//   threads        a 2e5-cell grid on 1 and on 2 threads (whole run, null sink)
+//   prototype      cells/s on one thread, 5 methods, n = 5..200 x 2000 p
+//   memory         peak RSS of a full run to a cube with P and 10 P points of p
+#include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/exact.hpp"
+#include "covergrid/engine/interval_table.hpp"
+#include "covergrid/engine/run.hpp"
+#include "covergrid/methods/registry.hpp"
+#include "covergrid/output/cube.hpp"
+#include "covergrid/scenarios/loader.hpp"
+
+#include <fmt/format.h>
+#include <sys/resource.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <chrono>
+#include <cmath>
+#include <cstdlib>
+#include <filesystem>
+#include <string>
+#include <vector>
+
+namespace e = covergrid::engine;
+namespace m = covergrid::methods;
+
+namespace {
+
+double now() {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
+}
+
+/// Discards results; summaries are computed from zeros.
+class NullSink final : public e::ResultSink {
+ public:
+  explicit NullSink(std::size_t chunks) : chunks_(chunks) {}
+  std::vector<char> completed() override { return std::vector<char>(chunks_, 0); }
+  void write_chunk(const e::ChunkResult& r) override { checksum += r.has_exact ? r.exact[0][0] : 0.0; }
+  void checkpoint() override {}
+  void read_rows(e::Metric, std::size_t, std::size_t, std::size_t count, std::vector<double>& out) override {
+    out.assign(rows_ * count, 0.0);
+  }
+  void write_grid_stats(std::size_t, std::size_t, std::size_t, const std::vector<double>&) override {}
+  void finish() override {}
+  void set_row_width(std::size_t w) { rows_ = w; }
+  double checksum = 0;
+
+ private:
+  std::size_t chunks_, rows_ = 0;
+};
+
+const char* five_methods = R"(
+[[method]]
+id = "wald"
+[[method]]
+id = "wilson"
+[[method]]
+id = "agresti-coull"
+[[method]]
+id = "clopper-pearson"
+[[method]]
+id = "jeffreys"
+)";
+
+double run_null(const e::Scenario& s, int threads) {
+  const auto plan = e::make_plan(s);
+  NullSink sink(plan.chunks.size());
+  sink.set_row_width(e::combo_count(s) * s.p.size());
+  e::RunOptions o;
+  o.threads = threads;
+  const double t0 = now();
+  e::run_scenario(s, sink, o);
+  return now() - t0;
+}
+
+void exact_scaling() {
+  std::vector<m::MethodInstance> methods;
+  for (const char* id : {"wald", "wilson", "agresti-coull", "clopper-pearson", "jeffreys"})
+    methods.push_back(m::make_instance(id, {}));
+  auto per_cell = [&](int n) {
+    std::vector<e::IntervalTable> tables;
+    for (const auto& mi : methods) tables.push_back(e::build_table(*mi.method, n, 0.95, m::Side::two_sided));
+    e::BinomialWindow w;
+    double sink = 0;
+    const int points = 400;
+    int reps = 0;
+    const double t0 = now();
+    double t = 0;
+    do {
+      for (int k = 0; k < points; ++k) {
+        const double p = 0.05 + 0.9 * k / (points - 1);
+        w.fill(n, p);
+        for (const auto& tb : tables) sink += e::exact_metrics(tb, w, p)[0];
+      }
+      ++reps;
+      t = now() - t0;
+    } while (t < 1.0);
+    if (sink < 0) fmt::print("impossible\n");
+    return t / (reps * points);
+  };
+  const double small = per_cell(1000), large = per_cell(100000);
+  fmt::print("exact-scaling: per (n, p) cell with 5 methods, p in [0.05, 0.95], one thread\n");
+  fmt::print("  n = 1000: {:.3g} us/cell; n = 100000: {:.3g} us/cell\n", small * 1e6, large * 1e6);
+  fmt::print("  ratio {:.2f} (sqrt(100) = 10 if cost grows like sqrt n; 100 if like n)\n", large / small);
+}
+
+void threads() {
+  const auto s = covergrid::scenarios::load_scenario_text(std::string(R"(
+[grid]
+n = { from = 1, to = 500 }
+p = { from = 0.001, to = 0.999, count = 400 }
+levels = [0.95]
+)") + five_methods, "bench.toml", "");
+  const double one = run_null(s, 1), two = run_null(s, 2);
+  fmt::print("threads: {} cells (n = 1..500 x 400 p, 5 methods), whole run into a null sink\n",
+             s.n.size() * s.p.size());
+  fmt::print("  1 thread {:.3f} s, 2 threads {:.3f} s: speed-up {:.2f} (target >= 1.8)\n", one, two, one / two);
+}
+
+void prototype() {
+  const auto s = covergrid::scenarios::load_scenario_text(std::string(R"(
+[grid]
+n = { from = 5, to = 200 }
+p = { from = 0.0005, to = 0.9995, count = 2000 }
+levels = [0.95]
+)") + five_methods, "bench.toml", "");
+  const double t = run_null(s, 1);
+  const double cells = static_cast<double>(s.n.size() * s.p.size());
+  fmt::print("prototype grid: n = 5..200 x 2000 p, 5 methods, one thread, whole run: {:.3f} s\n", t);
+  fmt::print("  {:.3g} cells/s ({:.2f} x the prototype's 1.2e7 cells/s)\n", cells / t, cells / t / 1.2e7);
+}
+
+/// Child mode: run a grid with `points` p values to a cube in `dir`.
+int memory_child(const std::string& dir, int points) {
+  auto s = covergrid::scenarios::load_scenario_text(
+      fmt::format(R"(
+[grid]
+n = {{ from = 10, to = 400, step = 10 }}
+p = {{ from = 0.001, to = 0.999, count = {} }}
+levels = [0.9, 0.95]
+[output]
+cube = "mem-{}.h5"
+tables = ""
+)",
+                  points, points) +
+          five_methods,
+      "bench.toml", dir);
+  covergrid::output::OutputState st = covergrid::output::inspect_output(s, true);
+  const auto plan = e::make_plan(s);
+  covergrid::output::CubeWriter w(s, plan, st == covergrid::output::OutputState::resumed);
+  e::run_scenario(s, w);
+  std::filesystem::remove(s.cube_path);
+  return 0;
+}
+
+long child_peak_kib(const char* self, const std::string& dir, int points) {
+  const pid_t pid = fork();
+  if (pid == 0) {
+    const std::string p = std::to_string(points);
+    execl(self, self, "memory-child", dir.c_str(), p.c_str(), static_cast<char*>(nullptr));
+    _exit(127);
+  }
+  int status = 0;
+  rusage usage{};
+  wait4(pid, &status, 0, &usage);
+  return usage.ru_maxrss;
+}
+
+void memory(const char* self) {
+  const std::string dir = (std::filesystem::temp_directory_path() / "covergrid-bench-mem").string();
+  std::filesystem::create_directories(dir);
+  const long small = child_peak_kib(self, dir, 2000), large = child_peak_kib(self, dir, 20000);
+  std::filesystem::remove_all(dir);
+  fmt::print("memory: peak RSS of a full run to a cube (40 n x P p x 5 methods x 2 levels)\n");
+  fmt::print("  P = 2000: {} MiB; P = 20000: {} MiB; ratio {:.2f} for a 10x larger grid (flat = 1)\n",
+             small / 1024, large / 1024, static_cast<double>(large) / static_cast<double>(small));
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  const std::string what = argc > 1 ? argv[1] : "all";
+  if (what == "memory-child") return memory_child(argv[2], std::atoi(argv[3]));
+  if (what == "all" || what == "exact-scaling") exact_scaling();
+  if (what == "all" || what == "threads") threads();
+  if (what == "all" || what == "prototype") prototype();
+  if (what == "all" || what == "memory") memory(argv[0]);
+  return 0;
+}
