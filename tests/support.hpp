@@ -51,6 +51,11 @@ class MemorySink final : public engine::ResultSink {
           for (std::size_t j = 0; j < c.p_count; ++j)
             exact[k][at(cb, c.model, c.n_begin + i) * s_.p.size() + c.p_begin + j] =
                 r.exact[k][(cb * c.n_count + i) * c.p_count + j];
+    if (r.has_grid_stats)
+      for (std::size_t k = 0; k < r.grid_stats.size(); ++k)
+        for (std::size_t cb = 0; cb < r.combos; ++cb)
+          for (std::size_t i = 0; i < c.n_count; ++i)
+            stats[k][at(cb, c.model, c.n_begin + i)] = r.grid_stats[k][cb * c.n_count + i];
     if (r.has_row_stats)
       for (std::size_t k = 0; k < r.row_stats.size(); ++k)
         for (std::size_t cb = 0; cb < r.combos; ++cb)

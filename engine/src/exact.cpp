@@ -183,45 +183,48 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
   }
   if (p_hi <= p_lo) return best;
 
-  double left = p_lo;
-  std::size_t e = 0;
-  for (;;) {
-    const double right = e < events.size() ? events[e].p : p_hi;
-    // The segment (left, right) with the current covered set.
-    if (right > left) {
-      if (covered.contiguous()) {
-        consider(set_probability(covered, left), left, +1);
-        consider(set_probability(covered, right), right, -1);
-      } else {
-        best.refined = true;
-        constexpr int points = 33;
-        for (int i = 0; i < points; ++i) {
-          const double t = left + (right - left) * i / (points - 1);
-          consider(set_probability(covered, t), t, i == 0 ? +1 : (i == points - 1 ? -1 : 0));
-        }
-      }
+  // Within a segment the minimum is at an end, as a one-sided limit. Where
+  // only entries happen at an endpoint the limit from below is the smaller
+  // one (coverage jumps up), where only exits happen the limit from above;
+  // so each endpoint needs one evaluation (two where both happen).
+  auto refine = [&](double a, double b) {
+    best.refined = true;
+    constexpr int points = 33;
+    for (int i = 0; i < points; ++i) {
+      const double t = a + (b - a) * i / (points - 1);
+      consider(set_probability(covered, t), t, i == 0 ? +1 : (i == points - 1 ? -1 : 0));
     }
-    if (e >= events.size()) break;
-    // Apply every event at this p. At the point itself both the entering and
-    // the leaving x are covered (closed intervals); its value is never below
-    // the one-sided limits, so only the limits are candidates.
+  };
+  double left = p_lo;
+  if (covered.contiguous()) consider(set_probability(covered, p_lo), p_lo, +1);
+  std::size_t e = 0;
+  while (e < events.size()) {
     // Endpoints closer than endpoint_merge_tolerance are one event: limits are
     // only computed to about 1e-12 (the root-finding tolerance), and methods
     // such as Blaker's have U(x) = L(x') exactly in theory; a rounding gap
     // between them must not count as a dip in coverage.
     const double at = events[e].p;
     std::size_t group_end = e;
-    while (group_end < events.size() && events[group_end].p <= at + endpoint_merge_tolerance) ++group_end;
+    bool entries = false, exits = false;
+    while (group_end < events.size() && events[group_end].p <= at + endpoint_merge_tolerance) {
+      (events[group_end].enters ? entries : exits) = true;
+      ++group_end;
+    }
     const double last = events[group_end - 1].p;
+    if (!covered.contiguous()) refine(left, at);
+    else if (entries) consider(set_probability(covered, at), at, -1);
     // Entries first (an x that also leaves within the group never joins), then exits.
     for (std::size_t g = e; g < group_end; ++g)
       if (events[g].enters && table.upper[static_cast<std::size_t>(events[g].x)] > last)
         covered.set(events[g].x, true);
     for (std::size_t g = e; g < group_end; ++g)
       if (!events[g].enters) covered.set(events[g].x, false);
+    if (exits && covered.contiguous()) consider(set_probability(covered, last), last, +1);
     e = group_end;
-    left = events[e - 1].p;
+    left = last;
   }
+  if (!covered.contiguous()) refine(left, p_hi);
+  else consider(set_probability(covered, p_hi), p_hi, -1);
   // The point value at p_hi (included in the closed range).
   {
     double at = 0;

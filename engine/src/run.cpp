@@ -6,6 +6,7 @@
 
 #include <tbb/global_control.h>
 #include <tbb/parallel_for.h>
+#include <tbb/parallel_pipeline.h>
 #include <tbb/task_arena.h>
 
 #include <algorithm>
@@ -13,6 +14,7 @@
 #include <limits>
 #include <map>
 #include <memory>
+#include <mutex>
 #include <stdexcept>
 
 namespace covergrid::engine {
@@ -66,6 +68,20 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
         }
       }
     }
+  }
+  if (scenario.exact && chunk.p_begin == 0 && chunk.p_count == scenario.p.size()) {
+    r.has_grid_stats = true;
+    for (auto& v : r.grid_stats) v.assign(combos * chunk.n_count, nan);
+    const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
+    double row[grid_stat_count];
+    for (std::size_t c = 0; c < combos; ++c)
+      for (std::size_t i = 0; i < chunk.n_count; ++i) {
+        const std::size_t at = c * cells + i * chunk.p_count;
+        grid_stats(&r.exact[index(Metric::coverage)][at], &r.exact[index(Metric::width)][at],
+                   &r.exact[index(Metric::miss_low)][at], &r.exact[index(Metric::miss_high)][at], scenario.p,
+                   scenario.levels[(c / methods) % levels], row);
+        for (std::size_t k = 0; k < grid_stat_count; ++k) r.grid_stats[k][c * chunk.n_count + i] = row[k];
+      }
   }
   if (chunk.p_begin == 0) {
     r.has_row_stats = true;
@@ -179,6 +195,58 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
 
 }  // namespace
 
+namespace {
+
+/// Interval tables per (model, n index), built once by the first chunk that
+/// needs them and dropped when the last chunk of that row is written.
+class RowCache {
+ public:
+  RowCache(const Scenario& s, const std::vector<Combo>& combos, const std::vector<const ChunkSpec*>& todo)
+      : scenario_(s), combos_(combos) {
+    for (const ChunkSpec* c : todo)
+      for (std::size_t i = 0; i < c->n_count; ++i) ++remaining_[{c->model, c->n_begin + i}];
+  }
+
+  const RowTables* acquire(std::size_t model, std::size_t n_index) {
+    std::shared_ptr<Entry> entry;
+    {
+      std::lock_guard lock(mutex_);
+      auto& slot = entries_[{model, n_index}];
+      if (!slot) slot = std::make_shared<Entry>();
+      entry = slot;
+    }
+    std::call_once(entry->once, [&] {
+      entry->tables.resize(combos_.size());
+      // Isolated, so that this thread never picks up another chunk (which
+      // might wait on this very once_flag) while it waits for the loop.
+      tbb::this_task_arena::isolate([&] {
+        tbb::parallel_for(std::size_t{0}, combos_.size(), [&](std::size_t c) {
+          entry->tables[c] = table_for(combos_[c], scenario_.n[n_index]);
+        });
+      });
+    });
+    return &entry->tables;
+  }
+
+  void release(std::size_t model, std::size_t n_index) {
+    std::lock_guard lock(mutex_);
+    if (--remaining_[{model, n_index}] == 0) entries_.erase({model, n_index});
+  }
+
+ private:
+  struct Entry {
+    std::once_flag once;
+    RowTables tables;
+  };
+  const Scenario& scenario_;
+  const std::vector<Combo>& combos_;
+  std::mutex mutex_;
+  std::map<std::pair<std::size_t, std::size_t>, std::shared_ptr<Entry>> entries_;
+  std::map<std::pair<std::size_t, std::size_t>, std::size_t> remaining_;
+};
+
+}  // namespace
+
 RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options) {
   const Plan plan = make_plan(scenario, options.chunk_cells);
   const auto combos = combos_of(scenario);
@@ -200,64 +268,60 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
     }
   }
 
-  const int threads = options.threads > 0 ? options.threads : tbb::this_task_arena::max_concurrency();
+  const int threads =
+      options.threads > 0 ? options.threads : tbb::this_task_arena::max_concurrency();
   tbb::task_arena arena(threads);
-  const std::size_t batch = static_cast<std::size_t>(threads) * 4;
-
-  // Tables per (model, n index), kept while chunks of that row remain.
-  std::map<std::pair<std::size_t, std::size_t>, std::unique_ptr<RowTables>> cache;
-  std::map<std::pair<std::size_t, std::size_t>, std::size_t> remaining;
-  for (const ChunkSpec* c : todo)
-    for (std::size_t i = 0; i < c->n_count; ++i) ++remaining[{c->model, c->n_begin + i}];
-
-  for (std::size_t start = 0; start < todo.size(); start += batch) {
-    if (options.stop && options.stop->load()) {
-      report.interrupted = true;
-      break;
-    }
-    const std::size_t end = std::min(todo.size(), start + batch);
-    // Phase A: build the tables this batch needs, in parallel over (row, combo).
-    std::vector<std::pair<std::size_t, std::size_t>> missing;
-    for (std::size_t k = start; k < end; ++k)
-      for (std::size_t i = 0; i < todo[k]->n_count; ++i) {
-        const auto key = std::make_pair(todo[k]->model, todo[k]->n_begin + i);
-        if (!cache.contains(key)) {
-          cache[key] = std::make_unique<RowTables>(combos.size());
-          missing.push_back(key);
-        }
-      }
-    arena.execute([&] {
-      tbb::parallel_for(std::size_t{0}, missing.size() * combos.size(), [&](std::size_t t) {
-        const auto& key = missing[t / combos.size()];
-        (*cache.at(key))[t % combos.size()] = table_for(combos[t % combos.size()], scenario.n[key.second]);
-      });
-    });
-    // Phase B: compute the chunks in parallel; each is independent.
-    std::vector<ChunkResult> results(end - start);
-    arena.execute([&] {
-      tbb::parallel_for(start, end, [&](std::size_t k) {
-        const ChunkSpec& c = *todo[k];
-        std::vector<const RowTables*> rows;
-        for (std::size_t i = 0; i < c.n_count; ++i) rows.push_back(cache.at({c.model, c.n_begin + i}).get());
-        results[k - start] = compute_with_tables(scenario, c, rows);
-      });
-    });
-    // Phase C: hand over in plan order, then release finished rows.
-    for (auto& r : results) {
-      check_written(r, scenario);
-      sink.write_chunk(r);
-      cells_done += r.spec.n_count * r.spec.p_count;
-      ++report.chunks_computed;
-      for (std::size_t i = 0; i < r.spec.n_count; ++i) {
-        const auto key = std::make_pair(r.spec.model, r.spec.n_begin + i);
-        if (--remaining[key] == 0) cache.erase(key);
-      }
-    }
+  // Chunks in flight (bounds memory) and chunks between checkpoints.
+  const std::size_t tokens = static_cast<std::size_t>(threads) * 4;
+  const std::size_t checkpoint_every = tokens;
+  RowCache cache(scenario, combos, todo);
+  std::size_t next = 0, since_checkpoint = 0;
+  auto checkpoint = [&] {
     sink.checkpoint();
+    since_checkpoint = 0;
     if (options.progress) options.progress(cells_done, cells_total);
-  }
+  };
+
+  // A three-stage pipeline: hand out chunks in plan order; compute them in
+  // parallel; write them one at a time in plan order. Each chunk depends only
+  // on the scenario, so the results do not depend on the thread count.
+  using Result = std::shared_ptr<ChunkResult>;
+  arena.execute([&] {
+    tbb::parallel_pipeline(
+        tokens,
+        tbb::make_filter<void, std::size_t>(
+            tbb::filter_mode::serial_in_order,
+            [&](tbb::flow_control& fc) -> std::size_t {
+              if (next < todo.size() && options.stop && options.stop->load()) report.interrupted = true;
+              if (next >= todo.size() || report.interrupted) {
+                fc.stop();
+                return 0;
+              }
+              return next++;
+            }) &
+            tbb::make_filter<std::size_t, Result>(
+                tbb::filter_mode::parallel,
+                [&](std::size_t k) {
+                  const ChunkSpec* c = todo[k];
+                  std::vector<const RowTables*> rows;
+                  for (std::size_t i = 0; i < c->n_count; ++i)
+                    rows.push_back(cache.acquire(c->model, c->n_begin + i));
+                  return std::make_shared<ChunkResult>(compute_with_tables(scenario, *c, rows));
+                }) &
+            tbb::make_filter<Result, void>(tbb::filter_mode::serial_in_order, [&](const Result& r) {
+              check_written(*r, scenario);
+              sink.write_chunk(*r);
+              for (std::size_t i = 0; i < r->spec.n_count; ++i) cache.release(r->spec.model, r->spec.n_begin + i);
+              cells_done += r->spec.n_count * r->spec.p_count;
+              ++report.chunks_computed;
+              if (++since_checkpoint >= checkpoint_every) checkpoint();
+            }));
+  });
+  checkpoint();
   if (report.interrupted) return report;
-  summarise(scenario, plan, sink);
+  // Chunks that span whole rows carried their grid statistics; otherwise
+  // they are computed now, reading the rows back.
+  if (plan.p_block < scenario.p.size()) summarise(scenario, plan, sink);
   sink.finish();
   return report;
 }

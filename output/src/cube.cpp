@@ -196,6 +196,12 @@ void CubeWriter::write_chunk(const engine::ChunkResult& r) {
     for (std::size_t k = 0; k < engine::metric_count; ++k)
       write_block(exact_[k].get(), start, count, r.exact[k].data());
   }
+  if (r.has_grid_stats) {
+    const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin};
+    const std::vector<hsize_t> count = {1, S, L, M, c.n_count};
+    for (std::size_t k = 0; k < r.grid_stats.size(); ++k)
+      write_block(summary_[k].get(), start, count, r.grid_stats[k].data());
+  }
   if (r.has_row_stats) {
     const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin};
     const std::vector<hsize_t> count = {1, S, L, M, c.n_count};

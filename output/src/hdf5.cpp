@@ -79,7 +79,7 @@ Handle create_double_dataset(hid_t parent, const std::string& name, const std::v
   Handle dcpl(check_id(H5Pcreate(H5P_DATASET_CREATE), "make a dataset-creation list"), H5Pclose);
   check(H5Pset_chunk(dcpl.get(), rank, chunk.data()), "set chunking for " + name);
   check(H5Pset_shuffle(dcpl.get()), "set shuffle for " + name);
-  check(H5Pset_deflate(dcpl.get(), 4), "set compression for " + name);
+  check(H5Pset_deflate(dcpl.get(), 1), "set compression for " + name);
   const double fill = std::numeric_limits<double>::quiet_NaN();
   check(H5Pset_fill_value(dcpl.get(), H5T_NATIVE_DOUBLE, &fill), "set the fill value of " + name);
   check(H5Pset_fill_time(dcpl.get(), H5D_FILL_TIME_IFSET), "set the fill time of " + name);

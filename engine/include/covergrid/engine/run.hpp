@@ -12,9 +12,11 @@ namespace covergrid::engine {
 
 struct RunOptions {
   int threads = 0;  // 0 = all hardware threads
-  /// Called from the calling thread after each batch: (cells done, cells total).
+  /// Called at each checkpoint, one call at a time (from a worker thread):
+  /// (cells done, cells total).
   std::function<void(std::size_t, std::size_t)> progress;
-  /// When set and true, the run stops at the next batch boundary.
+  /// When set and true, no further chunk is started; those in flight are
+  /// written and checkpointed, then the run returns interrupted.
   const std::atomic<bool>* stop = nullptr;
   /// Cells per chunk for the plan (make_plan's target). Every run of one
   /// output must use the same value; only tests change it.

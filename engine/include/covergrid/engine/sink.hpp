@@ -21,6 +21,11 @@ struct ChunkResult {
   /// index i holds Stat(grid_stat_count + i).
   bool has_row_stats = false;
   std::array<std::vector<double>, stat_count - grid_stat_count> row_stats;
+  /// Grid statistics per [combo][n] (Stat 0 .. grid_stat_count-1), present
+  /// when the chunk spans whole rows of p; otherwise the run computes them at
+  /// the end from read_rows() and hands them to write_grid_stats().
+  bool has_grid_stats = false;
+  std::array<std::vector<double>, grid_stat_count> grid_stats;
 };
 
 class ResultSink {
