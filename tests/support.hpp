@@ -67,13 +67,14 @@ class MemorySink final : public engine::ResultSink {
   }
   void checkpoint() override { ++checkpoints; }
   void read_rows(engine::Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                 std::vector<double>& out) override {
+                 std::size_t p_begin, std::size_t p_count, std::vector<double>& out) override {
     const std::size_t combos = engine::combo_count(s_), P = s_.p.size();
-    out.assign(combos * n_count * P, 0.0);
+    out.assign(combos * n_count * p_count, 0.0);
     for (std::size_t cb = 0; cb < combos; ++cb)
       for (std::size_t i = 0; i < n_count; ++i)
-        for (std::size_t j = 0; j < P; ++j)
-          out[(cb * n_count + i) * P + j] = exact[engine::index(metric)][at(cb, model, n_begin + i) * P + j];
+        for (std::size_t j = 0; j < p_count; ++j)
+          out[(cb * n_count + i) * p_count + j] =
+              exact[engine::index(metric)][at(cb, model, n_begin + i) * P + p_begin + j];
   }
   void write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,
                         const std::vector<double>& st) override {

@@ -211,8 +211,10 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
       ++group_end;
     }
     const double last = events[group_end - 1].p;
-    if (!covered.contiguous()) refine(left, at);
-    else if (entries) consider(set_probability(covered, at), at, -1);
+    if (!covered.contiguous())
+      refine(left, at);
+    else if (entries)
+      consider(set_probability(covered, at), at, -1);
     // Entries first (an x that also leaves within the group never joins), then exits.
     for (std::size_t g = e; g < group_end; ++g)
       if (events[g].enters && table.upper[static_cast<std::size_t>(events[g].x)] > last)
@@ -223,8 +225,10 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
     e = group_end;
     left = last;
   }
-  if (!covered.contiguous()) refine(left, p_hi);
-  else consider(set_probability(covered, p_hi), p_hi, -1);
+  if (!covered.contiguous())
+    refine(left, p_hi);
+  else
+    consider(set_probability(covered, p_hi), p_hi, -1);
   // The point value at p_hi (included in the closed range).
   {
     double at = 0;

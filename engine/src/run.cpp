@@ -132,63 +132,82 @@ ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk) {
   return compute_with_tables(scenario, chunk, ptrs);
 }
 
-void grid_stats(const double* coverage, const double* width, const double* miss_low, const double* miss_high,
-                const std::vector<double>& p, double nominal, double* stats) {
-  const std::size_t count = p.size();
-  double sum = 0, sq = 0, below = 0, w = 0, lo = 0, hi = 0;
-  double min = std::numeric_limits<double>::infinity(), min_p = nan;
-  for (std::size_t j = 0; j < count; ++j) {
-    const double c = coverage[j];
-    sum += c;
-    sq += (c - nominal) * (c - nominal);
-    below += c < nominal ? 1.0 : 0.0;
-    w += width[j];
-    lo += miss_low[j];
-    hi += miss_high[j];
-    if (c < min) {
-      min = c;
-      min_p = p[j];
-    }
+void GridAccumulator::add(double coverage, double width, double miss_low, double miss_high, double p,
+                          double nominal) {
+  if (std::isnan(coverage)) undefined_ = true;
+  sum_ += coverage;
+  sq_ += (coverage - nominal) * (coverage - nominal);
+  below_ += coverage < nominal ? 1.0 : 0.0;
+  width_ += width;
+  low_ += miss_low;
+  high_ += miss_high;
+  if (coverage < min_) {
+    min_ = coverage;
+    min_p_ = p;
   }
-  const double k = static_cast<double>(count);
-  if (std::isnan(sum)) {
+  ++count_;
+}
+
+void GridAccumulator::finish(double, double* stats) const {
+  if (undefined_ || count_ == 0) {
     for (std::size_t s = 0; s < grid_stat_count; ++s) stats[s] = nan;
     return;
   }
-  stats[index(Stat::mean_coverage)] = sum / k;
-  stats[index(Stat::min_coverage)] = min;
-  stats[index(Stat::min_coverage_p)] = min_p;
-  stats[index(Stat::rms_deviation)] = std::sqrt(sq / k);
-  stats[index(Stat::share_below)] = below / k;
-  stats[index(Stat::mean_width)] = w / k;
-  stats[index(Stat::mean_miss_low)] = lo / k;
-  stats[index(Stat::mean_miss_high)] = hi / k;
+  const double k = static_cast<double>(count_);
+  stats[index(Stat::mean_coverage)] = sum_ / k;
+  stats[index(Stat::min_coverage)] = min_;
+  stats[index(Stat::min_coverage_p)] = min_p_;
+  stats[index(Stat::rms_deviation)] = std::sqrt(sq_ / k);
+  stats[index(Stat::share_below)] = below_ / k;
+  stats[index(Stat::mean_width)] = width_ / k;
+  stats[index(Stat::mean_miss_low)] = low_ / k;
+  stats[index(Stat::mean_miss_high)] = high_ / k;
+}
+
+void grid_stats(const double* coverage, const double* width, const double* miss_low, const double* miss_high,
+                const std::vector<double>& p, double nominal, double* stats) {
+  GridAccumulator acc;
+  for (std::size_t j = 0; j < p.size(); ++j)
+    acc.add(coverage[j], width[j], miss_low[j], miss_high[j], p[j], nominal);
+  acc.finish(nominal, stats);
 }
 
 namespace {
 
+/// Grid statistics for rows split over several chunks, read back block by
+/// block of p so that memory stays bounded by one chunk's worth per metric.
 void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
   const std::size_t combos = combo_count(scenario);
   const std::size_t points = scenario.p.size();
   const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
   std::vector<double> cov, wid, mlo, mhi, stats;
+  std::vector<GridAccumulator> acc;
   for (std::size_t model = 0; model < scenario.models.size(); ++model)
     for (std::size_t nb = 0; nb < scenario.n.size(); nb += plan.n_block) {
       const std::size_t count = std::min(plan.n_block, scenario.n.size() - nb);
-      sink.read_rows(Metric::coverage, model, nb, count, cov);
-      sink.read_rows(Metric::width, model, nb, count, wid);
-      sink.read_rows(Metric::miss_low, model, nb, count, mlo);
-      sink.read_rows(Metric::miss_high, model, nb, count, mhi);
-      stats.assign(grid_stat_count * combos * count, nan);
-      double row[grid_stat_count];
-      for (std::size_t c = 0; c < combos; ++c) {
-        const double nominal = scenario.levels[(c / methods) % levels];
-        for (std::size_t i = 0; i < count; ++i) {
-          const std::size_t at = (c * count + i) * points;
-          grid_stats(&cov[at], &wid[at], &mlo[at], &mhi[at], scenario.p, nominal, row);
-          for (std::size_t s = 0; s < grid_stat_count; ++s) stats[(s * combos + c) * count + i] = row[s];
+      acc.assign(combos * count, GridAccumulator{});
+      for (std::size_t pb = 0; pb < points; pb += plan.p_block) {
+        const std::size_t width = std::min(plan.p_block, points - pb);
+        sink.read_rows(Metric::coverage, model, nb, count, pb, width, cov);
+        sink.read_rows(Metric::width, model, nb, count, pb, width, wid);
+        sink.read_rows(Metric::miss_low, model, nb, count, pb, width, mlo);
+        sink.read_rows(Metric::miss_high, model, nb, count, pb, width, mhi);
+        for (std::size_t c = 0; c < combos; ++c) {
+          const double nominal = scenario.levels[(c / methods) % levels];
+          for (std::size_t i = 0; i < count; ++i)
+            for (std::size_t j = 0; j < width; ++j) {
+              const std::size_t at = (c * count + i) * width + j;
+              acc[c * count + i].add(cov[at], wid[at], mlo[at], mhi[at], scenario.p[pb + j], nominal);
+            }
         }
       }
+      stats.assign(grid_stat_count * combos * count, nan);
+      double row[grid_stat_count];
+      for (std::size_t c = 0; c < combos; ++c)
+        for (std::size_t i = 0; i < count; ++i) {
+          acc[c * count + i].finish(scenario.levels[(c / methods) % levels], row);
+          for (std::size_t s = 0; s < grid_stat_count; ++s) stats[(s * combos + c) * count + i] = row[s];
+        }
       sink.write_grid_stats(model, nb, count, stats);
     }
 }
@@ -268,8 +287,7 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
     }
   }
 
-  const int threads =
-      options.threads > 0 ? options.threads : tbb::this_task_arena::max_concurrency();
+  const int threads = options.threads > 0 ? options.threads : tbb::this_task_arena::max_concurrency();
   tbb::task_arena arena(threads);
   // Chunks in flight (bounds memory) and chunks between checkpoints.
   const std::size_t tokens = static_cast<std::size_t>(threads) * 4;
@@ -289,29 +307,30 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
   arena.execute([&] {
     tbb::parallel_pipeline(
         tokens,
-        tbb::make_filter<void, std::size_t>(
-            tbb::filter_mode::serial_in_order,
-            [&](tbb::flow_control& fc) -> std::size_t {
-              if (next < todo.size() && options.stop && options.stop->load()) report.interrupted = true;
-              if (next >= todo.size() || report.interrupted) {
-                fc.stop();
-                return 0;
-              }
-              return next++;
-            }) &
-            tbb::make_filter<std::size_t, Result>(
-                tbb::filter_mode::parallel,
-                [&](std::size_t k) {
-                  const ChunkSpec* c = todo[k];
-                  std::vector<const RowTables*> rows;
-                  for (std::size_t i = 0; i < c->n_count; ++i)
-                    rows.push_back(cache.acquire(c->model, c->n_begin + i));
-                  return std::make_shared<ChunkResult>(compute_with_tables(scenario, *c, rows));
-                }) &
+        tbb::make_filter<void, std::size_t>(tbb::filter_mode::serial_in_order,
+                                            [&](tbb::flow_control& fc) -> std::size_t {
+                                              if (next < todo.size() && options.stop && options.stop->load())
+                                                report.interrupted = true;
+                                              if (next >= todo.size() || report.interrupted) {
+                                                fc.stop();
+                                                return 0;
+                                              }
+                                              return next++;
+                                            }) &
+            tbb::make_filter<std::size_t, Result>(tbb::filter_mode::parallel,
+                                                  [&](std::size_t k) {
+                                                    const ChunkSpec* c = todo[k];
+                                                    std::vector<const RowTables*> rows;
+                                                    for (std::size_t i = 0; i < c->n_count; ++i)
+                                                      rows.push_back(cache.acquire(c->model, c->n_begin + i));
+                                                    return std::make_shared<ChunkResult>(
+                                                        compute_with_tables(scenario, *c, rows));
+                                                  }) &
             tbb::make_filter<Result, void>(tbb::filter_mode::serial_in_order, [&](const Result& r) {
               check_written(*r, scenario);
               sink.write_chunk(*r);
-              for (std::size_t i = 0; i < r->spec.n_count; ++i) cache.release(r->spec.model, r->spec.n_begin + i);
+              for (std::size_t i = 0; i < r->spec.n_count; ++i)
+                cache.release(r->spec.model, r->spec.n_begin + i);
               cells_done += r->spec.n_count * r->spec.p_count;
               ++report.chunks_computed;
               if (++since_checkpoint >= checkpoint_every) checkpoint();

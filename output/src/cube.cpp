@@ -221,16 +221,12 @@ void CubeWriter::checkpoint() {
 }
 
 void CubeWriter::read_rows(Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                           std::vector<double>& out) {
+                           std::size_t p_begin, std::size_t p_count, std::vector<double>& out) {
   const std::size_t S = scenario_.sides.size(), L = scenario_.levels.size(), M = scenario_.methods.size();
-  const std::size_t P = scenario_.p.size();
-  out.assign(S * L * M * n_count * P, 0.0);
-  if (!scenario_.exact) {
-    std::fill(out.begin(), out.end(), std::numeric_limits<double>::quiet_NaN());
-    return;
-  }
-  read_block(exact_[engine::index(metric)].get(), {model, 0, 0, 0, n_begin, 0}, {1, S, L, M, n_count, P},
-             out.data());
+  out.assign(S * L * M * n_count * p_count, std::numeric_limits<double>::quiet_NaN());
+  if (!scenario_.exact) return;
+  read_block(exact_[engine::index(metric)].get(), {model, 0, 0, 0, n_begin, p_begin},
+             {1, S, L, M, n_count, p_count}, out.data());
 }
 
 void CubeWriter::write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,

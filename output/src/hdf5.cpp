@@ -18,6 +18,33 @@ void check(herr_t status, const std::string& what) {
   if (status < 0) throw CubeError("HDF5: cannot " + what);
 }
 
+namespace {
+
+/// File access: a bounded metadata cache (HDF5's default may grow to 32 MiB
+/// with the number of chunks), so that memory does not grow with the grid.
+Handle file_access() {
+  Handle fapl(check_id(H5Pcreate(H5P_FILE_ACCESS), "make a file-access list"), H5Pclose);
+  H5AC_cache_config_t config;
+  config.version = H5AC__CURR_CACHE_CONFIG_VERSION;
+  check(H5Pget_mdc_config(fapl.get(), &config), "read the metadata-cache settings");
+  config.set_initial_size = true;
+  config.initial_size = 1 << 20;
+  config.min_size = 1 << 20;
+  config.max_size = 4 << 20;
+  check(H5Pset_mdc_config(fapl.get(), &config), "bound the metadata cache");
+  return fapl;
+}
+
+/// Dataset access without a raw-data chunk cache: the cube writes and reads
+/// whole storage chunks, so caching them would only hold memory.
+Handle dataset_access() {
+  Handle dapl(check_id(H5Pcreate(H5P_DATASET_ACCESS), "make a dataset-access list"), H5Pclose);
+  check(H5Pset_chunk_cache(dapl.get(), 0, 0, 1.0), "turn off the chunk cache");
+  return dapl;
+}
+
+}  // namespace
+
 File File::create(const std::string& path) {
   quiet_hdf5_errors();
   File f;
@@ -27,7 +54,8 @@ File File::create(const std::string& path) {
   Handle fcpl(check_id(H5Pcreate(H5P_FILE_CREATE), "make a file-creation list"), H5Pclose);
   check(H5Pset_file_space_strategy(fcpl.get(), H5F_FSPACE_STRATEGY_NONE, 0, 1),
         "set the file-space strategy");
-  f.h_ = Handle(check_id(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, fcpl.get(), H5P_DEFAULT), "create " + path),
+  Handle fapl = file_access();
+  f.h_ = Handle(check_id(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, fcpl.get(), fapl.get()), "create " + path),
                 H5Fclose);
   return f;
 }
@@ -36,7 +64,8 @@ File File::open(const std::string& path, bool writable) {
   quiet_hdf5_errors();
   File f;
   f.path_ = path;
-  f.h_ = Handle(check_id(H5Fopen(path.c_str(), writable ? H5F_ACC_RDWR : H5F_ACC_RDONLY, H5P_DEFAULT),
+  Handle fapl = file_access();
+  f.h_ = Handle(check_id(H5Fopen(path.c_str(), writable ? H5F_ACC_RDWR : H5F_ACC_RDONLY, fapl.get()),
                          "open " + path + " as an HDF5 file"),
                 H5Fclose);
   return f;
@@ -69,7 +98,8 @@ bool exists(hid_t parent, const std::string& path) {
 }
 
 Handle open_dataset(hid_t parent, const std::string& name) {
-  return Handle(check_id(H5Dopen2(parent, name.c_str(), H5P_DEFAULT), "open dataset " + name), H5Dclose);
+  Handle dapl = dataset_access();
+  return Handle(check_id(H5Dopen2(parent, name.c_str(), dapl.get()), "open dataset " + name), H5Dclose);
 }
 
 Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
@@ -83,8 +113,9 @@ Handle create_double_dataset(hid_t parent, const std::string& name, const std::v
   const double fill = std::numeric_limits<double>::quiet_NaN();
   check(H5Pset_fill_value(dcpl.get(), H5T_NATIVE_DOUBLE, &fill), "set the fill value of " + name);
   check(H5Pset_fill_time(dcpl.get(), H5D_FILL_TIME_IFSET), "set the fill time of " + name);
+  Handle dapl = dataset_access();
   return Handle(check_id(H5Dcreate2(parent, name.c_str(), H5T_IEEE_F64LE, space.get(), H5P_DEFAULT,
-                                    dcpl.get(), H5P_DEFAULT),
+                                    dcpl.get(), dapl.get()),
                          "create dataset " + name),
                 H5Dclose);
 }

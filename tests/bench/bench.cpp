@@ -41,16 +41,17 @@ class NullSink final : public e::ResultSink {
   std::vector<char> completed() override { return std::vector<char>(chunks_, 0); }
   void write_chunk(const e::ChunkResult& r) override { checksum += r.has_exact ? r.exact[0][0] : 0.0; }
   void checkpoint() override {}
-  void read_rows(e::Metric, std::size_t, std::size_t, std::size_t count, std::vector<double>& out) override {
-    out.assign(rows_ * count, 0.0);
+  void read_rows(e::Metric, std::size_t, std::size_t, std::size_t count, std::size_t, std::size_t width,
+                 std::vector<double>& out) override {
+    out.assign(combos_ * count * width, 0.0);
   }
   void write_grid_stats(std::size_t, std::size_t, std::size_t, const std::vector<double>&) override {}
   void finish() override {}
-  void set_row_width(std::size_t w) { rows_ = w; }
+  void set_combos(std::size_t c) { combos_ = c; }
   double checksum = 0;
 
  private:
-  std::size_t chunks_, rows_ = 0;
+  std::size_t chunks_, combos_ = 0;
 };
 
 const char* five_methods = R"(
@@ -69,7 +70,7 @@ id = "jeffreys"
 double run_null(const e::Scenario& s, int threads) {
   const auto plan = e::make_plan(s);
   NullSink sink(plan.chunks.size());
-  sink.set_row_width(e::combo_count(s) * s.p.size());
+  sink.set_combos(e::combo_count(s));
   e::RunOptions o;
   o.threads = threads;
   const double t0 = now();
@@ -114,11 +115,13 @@ void threads() {
 n = { from = 1, to = 500 }
 p = { from = 0.001, to = 0.999, count = 400 }
 levels = [0.95]
-)") + five_methods, "bench.toml", "");
+)") + five_methods,
+                                                          "bench.toml", "");
   const double one = run_null(s, 1), two = run_null(s, 2);
   fmt::print("threads: {} cells (n = 1..500 x 400 p, 5 methods), whole run into a null sink\n",
              s.n.size() * s.p.size());
-  fmt::print("  1 thread {:.3f} s, 2 threads {:.3f} s: speed-up {:.2f} (target >= 1.8)\n", one, two, one / two);
+  fmt::print("  1 thread {:.3f} s, 2 threads {:.3f} s: speed-up {:.2f} (target >= 1.8)\n", one, two,
+             one / two);
 }
 
 void prototype() {
@@ -127,7 +130,8 @@ void prototype() {
 n = { from = 5, to = 200 }
 p = { from = 0.0005, to = 0.9995, count = 2000 }
 levels = [0.95]
-)") + five_methods, "bench.toml", "");
+)") + five_methods,
+                                                          "bench.toml", "");
   const double t = run_null(s, 1);
   const double cells = static_cast<double>(s.n.size() * s.p.size());
   fmt::print("prototype grid: n = 5..200 x 2000 p, 5 methods, one thread, whole run: {:.3f} s\n", t);
@@ -136,19 +140,18 @@ levels = [0.95]
 
 /// Child mode: run a grid with `points` p values to a cube in `dir`.
 int memory_child(const std::string& dir, int points) {
-  auto s = covergrid::scenarios::load_scenario_text(
-      fmt::format(R"(
+  auto s = covergrid::scenarios::load_scenario_text(fmt::format(R"(
 [grid]
-n = {{ from = 10, to = 400, step = 10 }}
+n = {{ from = 10, to = 200, step = 10 }}
 p = {{ from = 0.001, to = 0.999, count = {} }}
-levels = [0.9, 0.95]
+levels = [0.95]
 [output]
 cube = "mem-{}.h5"
 tables = ""
 )",
-                  points, points) +
-          five_methods,
-      "bench.toml", dir);
+                                                                points, points) +
+                                                        five_methods,
+                                                    "bench.toml", dir);
   covergrid::output::OutputState st = covergrid::output::inspect_output(s, true);
   const auto plan = e::make_plan(s);
   covergrid::output::CubeWriter w(s, plan, st == covergrid::output::OutputState::resumed);
@@ -173,11 +176,15 @@ long child_peak_kib(const char* self, const std::string& dir, int points) {
 void memory(const char* self) {
   const std::string dir = (std::filesystem::temp_directory_path() / "covergrid-bench-mem").string();
   std::filesystem::create_directories(dir);
-  const long small = child_peak_kib(self, dir, 2000), large = child_peak_kib(self, dir, 20000);
+  const long a = child_peak_kib(self, dir, 4000), b = child_peak_kib(self, dir, 40000),
+             c = child_peak_kib(self, dir, 80000);
   std::filesystem::remove_all(dir);
-  fmt::print("memory: peak RSS of a full run to a cube (40 n x P p x 5 methods x 2 levels)\n");
-  fmt::print("  P = 2000: {} MiB; P = 20000: {} MiB; ratio {:.2f} for a 10x larger grid (flat = 1)\n",
-             small / 1024, large / 1024, static_cast<double>(large) / static_cast<double>(small));
+  auto ratio = [](long x, long y) { return static_cast<double>(x) / static_cast<double>(y); };
+  fmt::print("memory: peak RSS of a full run to a cube (20 n x P p x 5 methods x 1 level)\n");
+  fmt::print("  P = 4000: {:.1f} MiB; P = 40000: {:.1f} MiB; P = 80000: {:.1f} MiB\n", ratio(a, 1024),
+             ratio(b, 1024), ratio(c, 1024));
+  fmt::print("  ratio {:.2f} for a 10x larger grid, {:.2f} for a further 2x (flat = 1)\n", ratio(b, a),
+             ratio(c, b));
 }
 
 }  // namespace

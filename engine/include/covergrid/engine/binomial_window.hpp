@@ -17,9 +17,9 @@ namespace covergrid::engine {
 inline constexpr double tail_bound_per_side = 2.5e-16;
 
 struct BinomialWindow {
-  int lo = 0;             // first x in the window
-  int hi = -1;            // last x in the window
-  std::vector<double> w;  // w[x - lo] = P(X = x)
+  int lo = 0;               // first x in the window
+  int hi = -1;              // last x in the window
+  std::vector<double> w;    // w[x - lo] = P(X = x)
   std::vector<double> cum;  // cum[i] = w[0] + ... + w[i-1]; size w.size() + 1
 
   /// Fills the window (and its running sums) for Bin(n, p); reuses the storage.

@@ -5,6 +5,7 @@
 #include "covergrid/engine/sink.hpp"
 
 #include <atomic>
+#include <cmath>
 #include <cstddef>
 #include <functional>
 
@@ -37,8 +38,22 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
 /// Computes one chunk (exposed for tests and benchmarks).
 ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk);
 
-/// Grid statistics of one (combo, n) row from its p values; `nominal` is the
-/// level. Writes Stat 0 .. grid_stat_count-1 into stats[0 .. grid_stat_count-1].
+/// Grid statistics of one (combo, n) row, accumulated over p in order (so a
+/// row can be fed block by block with the same result as in one go).
+class GridAccumulator {
+ public:
+  void add(double coverage, double width, double miss_low, double miss_high, double p, double nominal);
+  /// Writes Stat 0 .. grid_stat_count-1 into stats[0 .. grid_stat_count-1].
+  void finish(double nominal, double* stats) const;
+
+ private:
+  double sum_ = 0, sq_ = 0, below_ = 0, width_ = 0, low_ = 0, high_ = 0;
+  double min_ = HUGE_VAL, min_p_ = 0;
+  std::size_t count_ = 0;
+  bool undefined_ = false;
+};
+
+/// Grid statistics of a whole row: GridAccumulator over p[0..size).
 void grid_stats(const double* coverage, const double* width, const double* miss_low, const double* miss_high,
                 const std::vector<double>& p, double nominal, double* stats);
 

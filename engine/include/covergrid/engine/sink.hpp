@@ -39,9 +39,10 @@ class ResultSink {
   /// Makes what was written durable and records those chunks as complete.
   virtual void checkpoint() = 0;
   /// Reads back one exact metric for rows [n_begin, n_begin + n_count) of a
-  /// model over all p, into out laid out [combo][n][p].
+  /// model and p points [p_begin, p_begin + p_count), into out laid out
+  /// [combo][n][p].
   virtual void read_rows(Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                         std::vector<double>& out) = 0;
+                         std::size_t p_begin, std::size_t p_count, std::vector<double>& out) = 0;
   /// Stores the grid statistics (Stat 0 .. grid_stat_count-1) for those rows,
   /// laid out [stat][combo][n].
   virtual void write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,

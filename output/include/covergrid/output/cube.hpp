@@ -46,7 +46,7 @@ class CubeWriter final : public engine::ResultSink {
   void write_chunk(const engine::ChunkResult& result) override;
   void checkpoint() override;
   void read_rows(engine::Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                 std::vector<double>& out) override;
+                 std::size_t p_begin, std::size_t p_count, std::vector<double>& out) override;
   void write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,
                         const std::vector<double>& stats) override;
   void finish() override;
