@@ -9,13 +9,12 @@
 //   a2 = t2 + P(X >= k2), k2 the smallest k with P(X >= k) <= t2;
 //   gamma = min(1, a1, a2); the confidence set is {p : gamma(p) > alpha}.
 // Lower limit: since t1 <= gamma <= 2 t1 below p^, it lies in
-// [CP_L(alpha/2), CP_L(alpha)] (one-sided Clopper-Pearson bounds). gamma is
-// only piecewise continuous there, so we scan the bracket at 32 equal steps,
-// take the first accepted point, and bisect between it and the last rejected
-// one down to adjacent doubles, returning the accepted one. An accepted excursion narrower than
-// one scan step before the first accepted scan point would be missed; Blaker's
-// own algorithm steps through p in the same way. Upper limit by symmetry,
-// U(x) = 1 - L(n - x); L = 0 at x = 0, U = 1 at x = n.
+// [CP_L(alpha/2), CP_L(alpha)] (one-sided Clopper-Pearson bounds). For levels
+// of 2/3 and above it is found exactly by a piecewise analysis of gamma (see
+// blaker_lower); the accepted set is not always an interval, and a plain scan
+// of p can miss a narrow accepted excursion and so give an interval whose
+// coverage falls below nominal. Below 2/3 we fall back to Blaker's own scan.
+// Upper limit by symmetry, U(x) = 1 - L(n - x); L = 0 at x = 0, U = 1 at x = n.
 #include "covergrid/methods/numerics.hpp"
 #include "covergrid/methods/registry.hpp"
 #include "shared_limits.hpp"
@@ -68,31 +67,79 @@ double acceptability(int x, int n, double p) {
   return std::min(1.0, g);
 }
 
-double blaker_lower(int x, int n, double alpha) {
-  if (x == 0) return 0.0;
-  const double lo = clopper_pearson_lower(x, n, alpha / 2);
-  const double hi = clopper_pearson_lower(x, n, alpha);
+/// Bisects [rejected, accepted] down to adjacent doubles and returns the
+/// accepted end: the limit is often a jump of gamma, and a grid p placed
+/// exactly on it (p = 1/2, say) must fall on the accepted side.
+template <class Accepts>
+double bisect_to_adjacent(double rejected, double accepted, Accepts accepts) {
+  for (int it = 0; it < 200; ++it) {
+    const double mid = 0.5 * (rejected + accepted);
+    if (mid == rejected || mid == accepted) break;
+    if (accepts(mid))
+      accepted = mid;
+    else
+      rejected = mid;
+  }
+  return accepted;
+}
+
+/// The scan of Blaker's own algorithm, used only for levels below 2/3, where
+/// the piecewise analysis below does not apply: 32 equal steps over the
+/// bracket, then bisection of the first accepted step.
+double blaker_lower_scan(int x, int n, double alpha, double lo, double hi) {
   constexpr int steps = 32;
   double rejected = lo;
   for (int i = 1; i <= steps; ++i) {
     const double p = lo + (hi - lo) * i / steps;
-    if (acceptability(x, n, p) > alpha) {
-      double accepted = p;
-      // Bisect to the last bit: the limit is often a jump of gamma, and a grid
-      // p placed exactly on it (p = 1/2, say) must fall on the accepted side.
-      for (int it = 0; it < 200; ++it) {
-        const double mid = 0.5 * (rejected + accepted);
-        if (mid == rejected || mid == accepted) break;
-        if (acceptability(x, n, mid) > alpha)
-          accepted = mid;
-        else
-          rejected = mid;
-      }
-      return accepted;
-    }
+    if (acceptability(x, n, p) > alpha)
+      return bisect_to_adjacent(rejected, p, [&](double t) { return acceptability(x, n, t) > alpha; });
     rejected = p;
   }
-  return hi;  // every p above CP_L(alpha) is accepted (gamma >= t1 > alpha)
+  return hi;
+}
+
+/// The lower limit, exactly. On the bracket [CP_L(alpha/2), CP_L(alpha)]
+/// t1 <= alpha, so a1 <= 2 alpha while a2 >= t2 >= 1 - alpha: for alpha <= 1/3
+/// gamma = a1 = t1(p) + F(k*(p); p). F(k; p) - t1(p) falls strictly in p, so
+/// k* steps up by one at points p_k (roots found by TOMS 748), and on each
+/// piece [p_k, p_k+1) gamma_k = t1 + F(k) has derivative
+/// n [b(x-1; n-1, p) - b(k; n-1, p)], which changes sign at most once (from -
+/// to +): gamma_k is quasi-convex on the piece. So the first accepted p of a
+/// piece is its start, or the single up-crossing found by bisection, or none;
+/// the pieces are visited in order and the first accepted p is the limit.
+double blaker_lower(int x, int n, double alpha) {
+  if (x == 0) return 0.0;
+  const double lo = clopper_pearson_lower(x, n, alpha / 2);
+  const double hi = clopper_pearson_lower(x, n, alpha);
+  if (alpha > 1.0 / 3.0) return blaker_lower_scan(x, n, alpha, lo, hi);
+  auto t1 = [&](double p) { return binomial_sf(x - 1, n, p); };  // P(X >= x)
+  int k = largest_cdf_at_most(x - 1, n, lo, t1(lo));
+  double start = lo;
+  for (int guard = 0; guard <= n + 1; ++guard) {
+    // The piece [start, end) on which k* = k.
+    double end = hi;
+    bool jump = false;
+    if (k + 1 <= x - 1) {
+      const int next = k + 1;
+      auto gap = [&](double p) { return binomial_cdf(next, n, p) - t1(p); };
+      if (gap(hi) <= 0) {
+        end = gap(start) <= 0 ? start : solve_bracketed(gap, start, hi, "blaker piece boundary");
+        jump = true;
+      }
+    }
+    auto gamma_k = [&](double p) { return t1(p) + (k >= 0 ? binomial_cdf(k, n, p) : 0.0); };
+    // A piece start is a root, known to the solver's 4e-14 relative; at ties
+    // such as p = 1/2 it is exact in theory (U(x) = L(x') there). Stepping
+    // 1e-13 relative to the safe side keeps the interval at least as wide as
+    // the true one, so a grid p on the jump is covered.
+    if (gamma_k(start) > alpha) return start == lo ? start : start * (1 - 1e-13);
+    if (gamma_k(end) > alpha)
+      return bisect_to_adjacent(start, end, [&](double p) { return gamma_k(p) > alpha; });
+    if (!jump) return hi;  // just above CP_L(alpha), t1 > alpha: accepted
+    start = end;
+    ++k;
+  }
+  throw NumericalError("blaker: too many pieces in the lower-limit bracket");
 }
 
 class Blaker final : public IntervalMethod {

@@ -10,7 +10,6 @@
 
 #include <algorithm>
 #include <cmath>
-#include <regex>
 #include <set>
 
 namespace m = covergrid::methods;
@@ -42,10 +41,15 @@ bool equal_tailed(const std::string& id) { return id != "bayes-hpd" && id != "bl
 
 TEST_CASE("registry metadata is well formed", "[methods][registry]") {
   std::set<std::string> ids;
-  const std::regex id_shape("[a-z]+(-[a-z]+)*");
+  // Lower-case words joined by single hyphens.
+  auto id_shape_ok = [](const std::string& id) {
+    if (id.empty() || id.front() == '-' || id.back() == '-' || id.find("--") != std::string::npos)
+      return false;
+    return std::all_of(id.begin(), id.end(), [](char c) { return (c >= 'a' && c <= 'z') || c == '-'; });
+  };
   for (const auto& e : m::registry()) {
     INFO(e.info.id);
-    CHECK(std::regex_match(e.info.id, id_shape));
+    CHECK(id_shape_ok(e.info.id));
     CHECK(ids.insert(e.info.id).second);
     CHECK_FALSE(e.info.name.empty());
     CHECK_FALSE(e.info.reference.empty());
