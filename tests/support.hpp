@@ -32,57 +32,76 @@ class ScratchDir {
   std::filesystem::path path_;
 };
 
-/// Keeps every chunk and the grid statistics in memory, keyed by chunk id.
+/// Keeps every chunk and the grid statistics in memory, laid out
+/// [model][combo][n][p] (metrics) and [model][combo][n] (statistics).
 class MemorySink final : public engine::ResultSink {
  public:
-  MemorySink(const engine::Scenario& s, const engine::Plan& plan) : s_(s), plan_(plan) {
+  MemorySink(const engine::Scenario& s, const engine::Plan& plan) : s_(s) {
     const std::size_t rows = s.models.size() * s.n.size();
     const std::size_t combos = engine::combo_count(s);
     for (auto& m : exact) m.assign(combos * rows * s.p.size(), 0.0);
+    for (auto& m : mc) m.assign(combos * rows * s.p.size(), 0.0);
+    mc_replicates.assign(rows * s.p.size(), 0.0);
     for (auto& st : stats) st.assign(combos * rows, 0.0);
+    for (auto& st : mc_stats) st.assign(combos * rows, 0.0);
     done.assign(plan.chunks.size(), 0);
   }
   std::vector<char> completed() override { return done; }
   void write_chunk(const engine::ChunkResult& r) override {
     const auto& c = r.spec;
-    for (std::size_t k = 0; k < engine::metric_count; ++k)
+    const std::size_t P = s_.p.size();
+    auto scatter = [&](const std::vector<double>& from, std::vector<double>& to) {
       for (std::size_t cb = 0; cb < r.combos; ++cb)
         for (std::size_t i = 0; i < c.n_count; ++i)
           for (std::size_t j = 0; j < c.p_count; ++j)
-            exact[k][at(cb, c.model, c.n_begin + i) * s_.p.size() + c.p_begin + j] =
-                r.exact[k][(cb * c.n_count + i) * c.p_count + j];
+            to[at(cb, c.model, c.n_begin + i) * P + c.p_begin + j] =
+                from[(cb * c.n_count + i) * c.p_count + j];
+    };
+    auto scatter_stat = [&](const std::vector<double>& from, std::vector<double>& to) {
+      for (std::size_t cb = 0; cb < r.combos; ++cb)
+        for (std::size_t i = 0; i < c.n_count; ++i)
+          to[at(cb, c.model, c.n_begin + i)] = from[cb * c.n_count + i];
+    };
+    if (r.has_exact)
+      for (std::size_t k = 0; k < engine::metric_count; ++k) scatter(r.exact[k], exact[k]);
+    if (r.has_mc) {
+      for (std::size_t k = 0; k < engine::mc_metric_count; ++k) scatter(r.mc[k], mc[k]);
+      for (std::size_t i = 0; i < c.n_count; ++i)
+        for (std::size_t j = 0; j < c.p_count; ++j)
+          mc_replicates[(c.model * s_.n.size() + c.n_begin + i) * P + c.p_begin + j] =
+              r.mc_replicates[i * c.p_count + j];
+    }
     if (r.has_grid_stats)
-      for (std::size_t k = 0; k < r.grid_stats.size(); ++k)
-        for (std::size_t cb = 0; cb < r.combos; ++cb)
-          for (std::size_t i = 0; i < c.n_count; ++i)
-            stats[k][at(cb, c.model, c.n_begin + i)] = r.grid_stats[k][cb * c.n_count + i];
+      for (std::size_t k = 0; k < engine::grid_stat_count; ++k) scatter_stat(r.grid_stats[k], stats[k]);
+    if (r.has_mc_grid_stats)
+      for (std::size_t k = 0; k < engine::grid_stat_count; ++k) scatter_stat(r.mc_grid_stats[k], mc_stats[k]);
     if (r.has_row_stats)
       for (std::size_t k = 0; k < r.row_stats.size(); ++k)
-        for (std::size_t cb = 0; cb < r.combos; ++cb)
-          for (std::size_t i = 0; i < c.n_count; ++i)
-            stats[engine::grid_stat_count + k][at(cb, c.model, c.n_begin + i)] =
-                r.row_stats[k][cb * c.n_count + i];
+        scatter_stat(r.row_stats[k], stats[engine::grid_stat_count + k]);
     done[c.id] = 1;
     ++chunks_written;
   }
   void checkpoint() override { ++checkpoints; }
-  void read_rows(engine::Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                 std::size_t p_begin, std::size_t p_count, std::vector<double>& out) override {
+  void read_rows(engine::Source source, std::size_t metric, std::size_t model, std::size_t n_begin,
+                 std::size_t n_count, std::size_t p_begin, std::size_t p_count,
+                 std::vector<double>& out) override {
     const std::size_t combos = engine::combo_count(s_), P = s_.p.size();
+    const auto& from = source == engine::Source::exact ? exact.at(metric) : mc.at(metric);
     out.assign(combos * n_count * p_count, 0.0);
     for (std::size_t cb = 0; cb < combos; ++cb)
       for (std::size_t i = 0; i < n_count; ++i)
         for (std::size_t j = 0; j < p_count; ++j)
-          out[(cb * n_count + i) * p_count + j] =
-              exact[engine::index(metric)][at(cb, model, n_begin + i) * P + p_begin + j];
+          out[(cb * n_count + i) * p_count + j] = from[at(cb, model, n_begin + i) * P + p_begin + j];
   }
-  void write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,
+  void write_grid_stats(engine::Source source, std::size_t model, std::size_t n_begin, std::size_t n_count,
                         const std::vector<double>& st) override {
     const std::size_t combos = engine::combo_count(s_);
-    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k) {
+      auto& to = source == engine::Source::exact ? stats[k] : mc_stats[k];
       for (std::size_t cb = 0; cb < combos; ++cb)
         for (std::size_t i = 0; i < n_count; ++i)
-          stats[k][at(cb, model, n_begin + i)] = st[(k * combos + cb) * n_count + i];
+          to[at(cb, model, n_begin + i)] = st[(k * combos + cb) * n_count + i];
+    }
   }
   void finish() override { finished = true; }
 
@@ -92,14 +111,16 @@ class MemorySink final : public engine::ResultSink {
   }
 
   std::array<std::vector<double>, engine::metric_count> exact;
+  std::array<std::vector<double>, engine::mc_metric_count> mc;
+  std::vector<double> mc_replicates;
   std::array<std::vector<double>, engine::stat_count> stats;
+  std::array<std::vector<double>, engine::grid_stat_count> mc_stats;
   std::vector<char> done;
   std::size_t chunks_written = 0, checkpoints = 0;
   bool finished = false;
 
  private:
   const engine::Scenario& s_;
-  const engine::Plan& plan_;
 };
 
 /// Loads scenario text (relative outputs resolve into `dir`).

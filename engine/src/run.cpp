@@ -3,6 +3,8 @@
 #include "covergrid/engine/binomial_window.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
+#include "covergrid/engine/monte_carlo.hpp"
+#include "covergrid/engine/random.hpp"
 
 #include <tbb/global_control.h>
 #include <tbb/parallel_for.h>
@@ -51,39 +53,74 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
   r.spec = chunk;
   r.combos = combos;
   const std::size_t cells = chunk.n_count * chunk.p_count;
-  if (scenario.exact) {
-    r.has_exact = true;
-    for (auto& v : r.exact) v.assign(combos * cells, nan);  // poisoned until written
-    BinomialWindow window;
-    for (std::size_t i = 0; i < chunk.n_count; ++i) {
-      const int n = scenario.n[chunk.n_begin + i];
-      const RowTables& row = *tables[i];
-      for (std::size_t j = 0; j < chunk.p_count; ++j) {
-        const double p = scenario.p[chunk.p_begin + j];
-        window.fill(n, p);
+  // Poisoned until written (check_written verifies).
+  r.has_exact = scenario.exact;
+  if (r.has_exact)
+    for (auto& v : r.exact) v.assign(combos * cells, nan);
+  r.has_mc = scenario.replicates > 0;
+  if (r.has_mc) {
+    for (auto& v : r.mc) v.assign(combos * cells, nan);
+    r.mc_replicates.assign(cells, nan);
+  }
+  const ReplicateRule rule{scenario.replicates, scenario.target_se, scenario.max_replicates};
+  BinomialWindow window;  // one window per cell serves both sources
+  CellDraws draws;
+  std::vector<const IntervalTable*> row_tables(combos);
+  for (std::size_t i = 0; i < chunk.n_count; ++i) {
+    const int n = scenario.n[chunk.n_begin + i];
+    for (std::size_t c = 0; c < combos; ++c) row_tables[c] = &(*tables[i])[c];
+    for (std::size_t j = 0; j < chunk.p_count; ++j) {
+      const std::size_t p_index = chunk.p_begin + j;
+      const double p = scenario.p[p_index];
+      window.fill(n, p);
+      if (r.has_exact)
         for (std::size_t c = 0; c < combos; ++c) {
-          const CellMetrics m = exact_metrics(row[c], window, p);
+          const CellMetrics m = exact_metrics(*row_tables[c], window, p);
           const std::size_t at = c * cells + i * chunk.p_count + j;
           for (std::size_t k = 0; k < metric_count; ++k) r.exact[k][at] = m[k];
+        }
+      if (r.has_mc) {
+        const CellStream stream(scenario.seed, static_cast<std::uint32_t>(chunk.model),
+                                static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(p_index));
+        simulate_cell(window, stream, rule, row_tables, p, draws);
+        r.mc_replicates[i * chunk.p_count + j] = static_cast<double>(draws.replicates);
+        for (std::size_t c = 0; c < combos; ++c) {
+          const McMetrics m = mc_metrics(*row_tables[c], window, draws, p);
+          const std::size_t at = c * cells + i * chunk.p_count + j;
+          for (std::size_t k = 0; k < mc_metric_count; ++k) r.mc[k][at] = m[k];
         }
       }
     }
   }
-  if (scenario.exact && chunk.p_begin == 0 && chunk.p_count == scenario.p.size()) {
-    r.has_grid_stats = true;
-    for (auto& v : r.grid_stats) v.assign(combos * chunk.n_count, nan);
+  if (chunk.p_begin == 0 && chunk.p_count == scenario.p.size()) {
     const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
-    double row[grid_stat_count];
-    for (std::size_t c = 0; c < combos; ++c)
-      for (std::size_t i = 0; i < chunk.n_count; ++i) {
-        const std::size_t at = c * cells + i * chunk.p_count;
-        grid_stats(&r.exact[index(Metric::coverage)][at], &r.exact[index(Metric::width)][at],
-                   &r.exact[index(Metric::miss_low)][at], &r.exact[index(Metric::miss_high)][at], scenario.p,
-                   scenario.levels[(c / methods) % levels], row);
-        for (std::size_t k = 0; k < grid_stat_count; ++k) r.grid_stats[k][c * chunk.n_count + i] = row[k];
-      }
+    auto fill = [&](const std::array<std::vector<double>, metric_count>* ex,
+                    const std::array<std::vector<double>, mc_metric_count>* mc,
+                    std::array<std::vector<double>, grid_stat_count>& out) {
+      for (auto& v : out) v.assign(combos * chunk.n_count, nan);
+      double row[grid_stat_count];
+      for (std::size_t c = 0; c < combos; ++c)
+        for (std::size_t i = 0; i < chunk.n_count; ++i) {
+          const std::size_t at = c * cells + i * chunk.p_count;
+          const auto& cov = ex ? (*ex)[index(Metric::coverage)] : (*mc)[index(Metric::coverage)];
+          const auto& wid = ex ? (*ex)[index(Metric::width)] : (*mc)[index(Metric::width)];
+          const auto& mlo = ex ? (*ex)[index(Metric::miss_low)] : (*mc)[index(Metric::miss_low)];
+          const auto& mhi = ex ? (*ex)[index(Metric::miss_high)] : (*mc)[index(Metric::miss_high)];
+          grid_stats(&cov[at], &wid[at], &mlo[at], &mhi[at], scenario.p,
+                     scenario.levels[(c / methods) % levels], row);
+          for (std::size_t k = 0; k < grid_stat_count; ++k) out[k][c * chunk.n_count + i] = row[k];
+        }
+    };
+    if (r.has_exact) {
+      r.has_grid_stats = true;
+      fill(&r.exact, nullptr, r.grid_stats);
+    }
+    if (r.has_mc) {
+      r.has_mc_grid_stats = true;
+      fill(nullptr, &r.mc, r.mc_grid_stats);
+    }
   }
-  if (chunk.p_begin == 0) {
+  if (scenario.exact && chunk.p_begin == 0) {
     r.has_row_stats = true;
     for (auto& v : r.row_stats) v.assign(combos * chunk.n_count, nan);
     const double p_lo = scenario.p.front(), p_hi = scenario.p.back();
@@ -106,6 +143,11 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
 
 /// Verifies that nothing poisoned remains where a value was due.
 void check_written(const ChunkResult& r, const Scenario& scenario) {
+  if (r.has_mc)
+    for (double v : r.mc_replicates)
+      if (std::isnan(v))
+        throw std::logic_error("internal: a simulated cell was left unset in chunk " +
+                               std::to_string(r.spec.id));
   if (!r.has_exact) return;
   const std::size_t cells = r.spec.n_count * r.spec.p_count;
   const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
@@ -176,7 +218,7 @@ namespace {
 
 /// Grid statistics for rows split over several chunks, read back block by
 /// block of p so that memory stays bounded by one chunk's worth per metric.
-void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
+void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink, Source source) {
   const std::size_t combos = combo_count(scenario);
   const std::size_t points = scenario.p.size();
   const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
@@ -188,10 +230,10 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
       acc.assign(combos * count, GridAccumulator{});
       for (std::size_t pb = 0; pb < points; pb += plan.p_block) {
         const std::size_t width = std::min(plan.p_block, points - pb);
-        sink.read_rows(Metric::coverage, model, nb, count, pb, width, cov);
-        sink.read_rows(Metric::width, model, nb, count, pb, width, wid);
-        sink.read_rows(Metric::miss_low, model, nb, count, pb, width, mlo);
-        sink.read_rows(Metric::miss_high, model, nb, count, pb, width, mhi);
+        sink.read_rows(source, index(Metric::coverage), model, nb, count, pb, width, cov);
+        sink.read_rows(source, index(Metric::width), model, nb, count, pb, width, wid);
+        sink.read_rows(source, index(Metric::miss_low), model, nb, count, pb, width, mlo);
+        sink.read_rows(source, index(Metric::miss_high), model, nb, count, pb, width, mhi);
         for (std::size_t c = 0; c < combos; ++c) {
           const double nominal = scenario.levels[(c / methods) % levels];
           for (std::size_t i = 0; i < count; ++i)
@@ -208,7 +250,7 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
           acc[c * count + i].finish(scenario.levels[(c / methods) % levels], row);
           for (std::size_t s = 0; s < grid_stat_count; ++s) stats[(s * combos + c) * count + i] = row[s];
         }
-      sink.write_grid_stats(model, nb, count, stats);
+      sink.write_grid_stats(source, model, nb, count, stats);
     }
 }
 
@@ -340,7 +382,10 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
   if (report.interrupted) return report;
   // Chunks that span whole rows carried their grid statistics; otherwise
   // they are computed now, reading the rows back.
-  if (plan.p_block < scenario.p.size()) summarise(scenario, plan, sink);
+  if (plan.p_block < scenario.p.size()) {
+    if (scenario.exact) summarise(scenario, plan, sink, Source::exact);
+    if (scenario.replicates > 0) summarise(scenario, plan, sink, Source::mc);
+  }
   sink.finish();
   return report;
 }

@@ -6,10 +6,16 @@
 
 #include <fmt/format.h>
 
+#include <fcntl.h>
+#include <unistd.h>
+
+#include <cerrno>
 #include <chrono>
 #include <cstdio>
+#include <cstring>
 #include <ctime>
 #include <filesystem>
+#include <optional>
 
 namespace covergrid::output {
 
@@ -53,30 +59,196 @@ Existing read_existing(const std::string& path) {
 
 }  // namespace
 
+// ---------------------------------------------------------------- journal
+
+namespace {
+
+constexpr char journal_magic[8] = {'C', 'G', 'J', 'O', 'U', 'R', 'N', '1'};
+constexpr std::uint32_t record_magic = 0x31484B43;  // "CKH1"
+constexpr std::size_t journal_header_size = 8 + 4 + 4 + 64 + 8 * 4;
+constexpr std::size_t record_header_size = 4 + 4 + 8 + 8 + 8;
+
+/// Word-wise FNV-1a style checksum of a record's payload (catches torn and
+/// stale records; not a cryptographic hash).
+std::uint64_t checksum(const char* data, std::size_t size) {
+  std::uint64_t h = 0xcbf29ce484222325ull;
+  std::size_t i = 0;
+  for (; i + 8 <= size; i += 8) {
+    std::uint64_t w;
+    std::memcpy(&w, data + i, 8);
+    h = (h ^ w) * 0x100000001b3ull;
+  }
+  for (; i < size; ++i) h = (h ^ static_cast<unsigned char>(data[i])) * 0x100000001b3ull;
+  return h;
+}
+
+template <class T>
+void put(std::string& out, const T& v) {
+  out.append(reinterpret_cast<const char*>(&v), sizeof v);
+}
+void put_vector(std::string& out, const std::vector<double>& v) {
+  put(out, static_cast<std::uint64_t>(v.size()));
+  out.append(reinterpret_cast<const char*>(v.data()), v.size() * sizeof(double));
+}
+
+class Reader {
+ public:
+  Reader(const char* data, std::size_t size) : p_(data), end_(data + size) {}
+  template <class T>
+  T get() {
+    T v;
+    need(sizeof v);
+    std::memcpy(&v, p_, sizeof v);
+    p_ += sizeof v;
+    return v;
+  }
+  void get_vector(std::vector<double>& v) {
+    const auto size = get<std::uint64_t>();
+    need(size * sizeof(double));
+    v.resize(size);
+    std::memcpy(v.data(), p_, size * sizeof(double));
+    p_ += size * sizeof(double);
+  }
+
+ private:
+  void need(std::size_t k) const {
+    if (static_cast<std::size_t>(end_ - p_) < k)
+      throw CubeError("journal record is shorter than its contents");
+  }
+  const char* p_;
+  const char* end_;
+};
+
+std::string serialise(const engine::ChunkResult& r) {
+  std::string out;
+  const std::uint8_t flags = static_cast<std::uint8_t>((r.has_exact ? 1 : 0) | (r.has_row_stats ? 2 : 0) |
+                                                       (r.has_grid_stats ? 4 : 0) | (r.has_mc ? 8 : 0) |
+                                                       (r.has_mc_grid_stats ? 16 : 0));
+  put(out, flags);
+  if (r.has_exact)
+    for (const auto& v : r.exact) put_vector(out, v);
+  if (r.has_row_stats)
+    for (const auto& v : r.row_stats) put_vector(out, v);
+  if (r.has_grid_stats)
+    for (const auto& v : r.grid_stats) put_vector(out, v);
+  if (r.has_mc) {
+    for (const auto& v : r.mc) put_vector(out, v);
+    put_vector(out, r.mc_replicates);
+  }
+  if (r.has_mc_grid_stats)
+    for (const auto& v : r.mc_grid_stats) put_vector(out, v);
+  return out;
+}
+
+void deserialise(const char* data, std::size_t size, engine::ChunkResult& r) {
+  Reader in(data, size);
+  const auto flags = in.get<std::uint8_t>();
+  r.has_exact = flags & 1;
+  r.has_row_stats = flags & 2;
+  r.has_grid_stats = flags & 4;
+  r.has_mc = flags & 8;
+  r.has_mc_grid_stats = flags & 16;
+  if (r.has_exact)
+    for (auto& v : r.exact) in.get_vector(v);
+  if (r.has_row_stats)
+    for (auto& v : r.row_stats) in.get_vector(v);
+  if (r.has_grid_stats)
+    for (auto& v : r.grid_stats) in.get_vector(v);
+  if (r.has_mc) {
+    for (auto& v : r.mc) in.get_vector(v);
+    in.get_vector(r.mc_replicates);
+  }
+  if (r.has_mc_grid_stats)
+    for (auto& v : r.mc_grid_stats) in.get_vector(v);
+}
+
+/// Writes at an explicit offset (the end of the last valid record), so the
+/// descriptor's own position never matters.
+void write_all(int fd, const char* data, std::size_t size, std::uint64_t offset, const std::string& path) {
+  while (size > 0) {
+    const ssize_t k = ::pwrite(fd, data, size, static_cast<off_t>(offset));
+    if (k < 0) {
+      if (errno == EINTR) continue;
+      throw CubeError(fmt::format("cannot write {}: {}", path, std::strerror(errno)));
+    }
+    data += k;
+    size -= static_cast<std::size_t>(k);
+    offset += static_cast<std::uint64_t>(k);
+  }
+}
+
+bool read_at(int fd, char* data, std::size_t size, std::uint64_t offset) {
+  while (size > 0) {
+    const ssize_t k = ::pread(fd, data, size, static_cast<off_t>(offset));
+    if (k < 0 && errno == EINTR) continue;
+    if (k <= 0) return false;
+    data += k;
+    size -= static_cast<std::size_t>(k);
+    offset += static_cast<std::uint64_t>(k);
+  }
+  return true;
+}
+
+struct JournalHeader {
+  std::string sha;
+  std::uint64_t n_block = 0, p_block = 0, chunks = 0, combos = 0;
+};
+
+std::string header_bytes(const engine::Scenario& s, const engine::Plan& plan) {
+  std::string out(journal_magic, 8);
+  put(out, std::uint32_t{1});
+  put(out, std::uint32_t{0});
+  std::string sha = s.sha256;
+  sha.resize(64, ' ');
+  out += sha;
+  put(out, static_cast<std::uint64_t>(plan.n_block));
+  put(out, static_cast<std::uint64_t>(plan.p_block));
+  put(out, static_cast<std::uint64_t>(plan.chunks.size()));
+  put(out, static_cast<std::uint64_t>(engine::combo_count(s)));
+  return out;
+}
+
+/// Reads a journal's header; nullopt if the file is not a journal of ours.
+std::optional<JournalHeader> read_journal_header(const std::string& path) {
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) return std::nullopt;
+  char buf[journal_header_size];
+  const bool ok = read_at(fd, buf, sizeof buf, 0);
+  ::close(fd);
+  if (!ok || std::memcmp(buf, journal_magic, 8) != 0) return std::nullopt;
+  JournalHeader h;
+  h.sha.assign(buf + 16, 64);
+  Reader rest(buf + 80, sizeof buf - 80);
+  h.n_block = rest.get<std::uint64_t>();
+  h.p_block = rest.get<std::uint64_t>();
+  h.chunks = rest.get<std::uint64_t>();
+  h.combos = rest.get<std::uint64_t>();
+  return h;
+}
+
+}  // namespace
+
+std::string journal_path(const std::string& cube_path) { return cube_path + ".journal"; }
+
 OutputState inspect_output(const engine::Scenario& scenario, bool overwrite) {
   const std::string& path = scenario.cube_path;
-  const std::string temp = partial_path(path);
+  const std::string journal = journal_path(path);
   if (overwrite) return OutputState::fresh;
   if (fs::exists(path)) {
     const Existing e = read_existing(path);
     if (e.sha != scenario.sha256)
-      throw InputError(path,
-                       "holds the results of a different scenario (checksum differs); "
-                       "use --overwrite to replace it");
-    if (e.complete && !fs::exists(temp)) return OutputState::up_to_date;
+      throw InputError(
+          path,
+          "holds the results of a different scenario (checksum differs); use --overwrite to replace it");
+    if (e.complete && !fs::exists(journal)) return OutputState::up_to_date;
   }
-  if (fs::exists(temp)) {
-    Existing e{};
-    try {
-      e = read_existing(temp);
-    } catch (const InputError&) {
-      // An unreadable partial file of ours (a run killed mid-flush): start over.
-      return OutputState::fresh;
-    }
-    if (e.sha != scenario.sha256)
-      throw InputError(temp,
-                       "is an unfinished run of a different scenario; "
-                       "use --overwrite to discard it");
+  if (fs::exists(journal)) {
+    const auto h = read_journal_header(journal);
+    if (!h)
+      throw InputError(journal, "exists and is not a covergrid journal; not touching it (use --overwrite)");
+    if (h->sha != scenario.sha256)
+      throw InputError(journal,
+                       "is an unfinished run of a different scenario; use --overwrite to discard it");
     return OutputState::resumed;
   }
   return OutputState::fresh;
@@ -86,31 +258,143 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
     : scenario_(scenario),
       plan_(plan),
       final_path_(scenario.cube_path),
-      temp_path_(partial_path(scenario.cube_path)) {
+      journal_path_(journal_path(scenario.cube_path)),
+      temp_path_(partial_path(scenario.cube_path)),
+      offsets_(plan.chunks.size(), -1) {
+  const fs::path parent = fs::path(final_path_).parent_path();
+  if (!parent.empty() && !fs::is_directory(parent))
+    throw InputError(final_path_, "its folder " + parent.string() + " does not exist");
+  const std::string header = header_bytes(scenario, plan);
   if (resume) {
-    file_ = File::open(temp_path_, true);
-    Handle g = open_group(file_.id(), "/progress");
-    if (get_attr_int(g.get(), "n_block") != static_cast<std::int64_t>(plan.n_block) ||
-        get_attr_int(g.get(), "p_block") != static_cast<std::int64_t>(plan.p_block) ||
-        shape(open_dataset(file_.id(), "/progress/done").get())[0] != plan.chunks.size())
-      throw CubeError(temp_path_ + ": its chunk layout differs from this version's plan; use --overwrite");
-    for (auto name : engine::metric_names)
-      if (scenario.exact) exact_.push_back(open_dataset(file_.id(), "/exact/" + std::string(name)));
-    for (auto name : engine::stat_names)
-      summary_.push_back(open_dataset(file_.id(), "/summary/" + std::string(name)));
-    done_ = open_dataset(file_.id(), "/progress/done");
+    const auto h = read_journal_header(journal_path_);
+    if (!h || h->sha != scenario.sha256) throw CubeError(journal_path_ + ": not a journal of this scenario");
+    if (h->n_block != plan.n_block || h->p_block != plan.p_block || h->chunks != plan.chunks.size() ||
+        h->combos != engine::combo_count(scenario))
+      throw InputError(journal_path_,
+                       "was written with a different chunk layout; use --overwrite to start over");
+    fd_ = ::open(journal_path_.c_str(), O_RDWR | O_CLOEXEC);
+    if (fd_ < 0) throw CubeError(fmt::format("cannot open {}: {}", journal_path_, std::strerror(errno)));
+    // Walk the records; the first that is short, unknown or fails its
+    // checksum marks the end (a run killed mid-write), and is cut off.
+    std::uint64_t at = journal_header_size;
+    std::vector<char> buf;
+    for (;;) {
+      char head[record_header_size];
+      if (!read_at(fd_, head, sizeof head, at)) break;
+      Reader in(head, sizeof head);
+      const auto magic = in.get<std::uint32_t>();
+      in.get<std::uint32_t>();
+      const auto id = in.get<std::uint64_t>();
+      const auto size = in.get<std::uint64_t>();
+      const auto sum = in.get<std::uint64_t>();
+      if (magic != record_magic || id >= plan.chunks.size() || size > (std::uint64_t{1} << 40)) break;
+      buf.resize(size);
+      if (!read_at(fd_, buf.data(), size, at + record_header_size)) break;
+      if (checksum(buf.data(), size) != sum) break;
+      offsets_[id] = static_cast<std::int64_t>(at);
+      at += record_header_size + size;
+    }
+    end_ = at;
+    if (::ftruncate(fd_, static_cast<off_t>(end_)) != 0)
+      throw CubeError(fmt::format("cannot trim {}: {}", journal_path_, std::strerror(errno)));
   } else {
-    const fs::path parent = fs::path(temp_path_).parent_path();
-    if (!parent.empty() && !fs::is_directory(parent))
-      throw InputError(final_path_, "its folder " + parent.string() + " does not exist");
-    file_ = File::create(temp_path_);
-    create_layout();
+    std::error_code ec;
+    fs::remove(temp_path_, ec);
+    fd_ = ::open(journal_path_.c_str(), O_RDWR | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
+    if (fd_ < 0) throw CubeError(fmt::format("cannot create {}: {}", journal_path_, std::strerror(errno)));
+    write_all(fd_, header.data(), header.size(), 0, journal_path_);
+    end_ = header.size();
   }
 }
 
-void CubeWriter::create_layout() {
+CubeWriter::~CubeWriter() {
+  if (fd_ >= 0) ::close(fd_);
+}
+
+std::vector<char> CubeWriter::completed() {
+  std::vector<char> out(offsets_.size());
+  for (std::size_t i = 0; i < offsets_.size(); ++i) out[i] = offsets_[i] >= 0 ? 1 : 0;
+  return out;
+}
+
+void CubeWriter::write_chunk(const engine::ChunkResult& r) {
+  const std::string payload = serialise(r);
+  std::string record;
+  record.reserve(record_header_size + payload.size());
+  put(record, record_magic);
+  put(record, std::uint32_t{0});
+  put(record, static_cast<std::uint64_t>(r.spec.id));
+  put(record, static_cast<std::uint64_t>(payload.size()));
+  put(record, checksum(payload.data(), payload.size()));
+  record += payload;
+  write_all(fd_, record.data(), record.size(), end_, journal_path_);
+  offsets_[r.spec.id] = static_cast<std::int64_t>(end_);
+  end_ += record.size();
+}
+
+void CubeWriter::checkpoint() {
+  // Each record is handed to the kernel by write() as it is made, so a killed
+  // process loses nothing written; fdatasync makes it survive a crash of the
+  // machine too.
+  if (::fdatasync(fd_) != 0 && errno != EINVAL)
+    throw CubeError(fmt::format("cannot sync {}: {}", journal_path_, std::strerror(errno)));
+}
+
+engine::ChunkResult CubeWriter::read_record(std::size_t chunk) const {
+  if (offsets_[chunk] < 0)
+    throw CubeError("internal: chunk " + std::to_string(chunk) + " is not in the journal");
+  const std::uint64_t at = static_cast<std::uint64_t>(offsets_[chunk]);
+  char head[record_header_size];
+  if (!read_at(fd_, head, sizeof head, at)) throw CubeError(journal_path_ + ": cannot read a record");
+  Reader in(head, sizeof head);
+  in.get<std::uint32_t>();
+  in.get<std::uint32_t>();
+  in.get<std::uint64_t>();
+  const auto size = in.get<std::uint64_t>();
+  std::vector<char> buf(size);
+  if (!read_at(fd_, buf.data(), size, at + record_header_size))
+    throw CubeError(journal_path_ + ": cannot read a record");
+  engine::ChunkResult r;
+  r.spec = plan_.chunks[chunk];
+  r.combos = engine::combo_count(scenario_);
+  deserialise(buf.data(), size, r);
+  return r;
+}
+
+void CubeWriter::read_rows(engine::Source source, std::size_t metric, std::size_t model, std::size_t n_begin,
+                           std::size_t n_count, std::size_t p_begin, std::size_t p_count,
+                           std::vector<double>& out) {
+  const std::size_t n_blocks = (scenario_.n.size() + plan_.n_block - 1) / plan_.n_block;
+  const std::size_t p_blocks = (scenario_.p.size() + plan_.p_block - 1) / plan_.p_block;
+  const std::size_t id = (model * n_blocks + n_begin / plan_.n_block) * p_blocks + p_begin / plan_.p_block;
+  const auto& spec = plan_.chunks.at(id);
+  if (spec.n_begin != n_begin || spec.n_count != n_count || spec.p_begin != p_begin ||
+      spec.p_count != p_count)
+    throw CubeError("internal: read_rows asked for a block that is not one chunk");
+  engine::ChunkResult r = read_record(id);
+  out = source == engine::Source::exact ? std::move(r.exact.at(metric)) : std::move(r.mc.at(metric));
+}
+
+void CubeWriter::write_grid_stats(engine::Source source, std::size_t model, std::size_t n_begin,
+                                  std::size_t n_count, const std::vector<double>& stats) {
+  split_stats_[{source == engine::Source::exact ? 0 : 1, model * scenario_.n.size() + n_begin}] = stats;
+  (void)n_count;
+}
+
+void CubeWriter::finish() {
+  assemble();
+  ::close(fd_);
+  fd_ = -1;
+  std::error_code ec;
+  fs::rename(temp_path_, final_path_, ec);
+  if (ec) throw CubeError(fmt::format("cannot rename {} to {}: {}", temp_path_, final_path_, ec.message()));
+  fs::remove(journal_path_, ec);
+}
+
+void CubeWriter::assemble() {
   const engine::Scenario& s = scenario_;
-  const hid_t root = file_.id();
+  File file = File::create(temp_path_);
+  const hid_t root = file.id();
   set_attr(root, "format", std::string(cube_format_name));
   set_attr(root, "format_version", std::int64_t{cube_format_version});
   set_attr(root, "tool_version", std::string(tool_version));
@@ -148,20 +432,41 @@ void CubeWriter::create_layout() {
     for (const auto& [k, v] : m.params) set_attr(g.get(), "param." + k, methods::param_text(v));
   }
 
-  const std::vector<hsize_t> dims = {s.models.size(),  s.sides.size(), s.levels.size(),
-                                     s.methods.size(), s.n.size(),     s.p.size()};
+  const std::size_t S = s.sides.size(), L = s.levels.size(), M = s.methods.size();
+  const std::vector<hsize_t> dims = {s.models.size(), S, L, M, s.n.size(), s.p.size()};
   const std::vector<hsize_t> chunk = {1, 1, 1, 1, plan_.n_block, plan_.p_block};
   const std::vector<std::string> axis_list(axis_names.begin(), axis_names.end());
+  auto make_metric = [&](hid_t group, const std::string& name) {
+    Handle d = create_double_dataset(group, name, dims, chunk);
+    set_attr(d.get(), "axes", axis_list);
+    for (unsigned i = 0; i < 6; ++i) attach_scale(d.get(), scales[i].get(), i, axis_names[i]);
+    return d;
+  };
+  std::vector<Handle> exact, mc;
+  Handle mc_reps;
   if (s.exact) {
     Handle eg = create_group(root, "exact");
     set_attr(eg.get(), "pmf_tail_bound", 5e-16);
     set_attr(eg.get(), "interval", std::string("closed [L, U]; limits clipped to [0, 1]"));
-    for (auto name : engine::metric_names) {
-      Handle d = create_double_dataset(eg.get(), std::string(name), dims, chunk);
-      set_attr(d.get(), "axes", axis_list);
-      for (unsigned i = 0; i < 6; ++i) attach_scale(d.get(), scales[i].get(), i, axis_names[i]);
-      exact_.push_back(std::move(d));
-    }
+    for (auto name : engine::metric_names) exact.push_back(make_metric(eg.get(), std::string(name)));
+  }
+  if (s.replicates > 0) {
+    Handle g = create_group(root, "mc");
+    set_attr(g.get(), "generator",
+             std::string("Random123 Philox4x32-10; key = seed; counter = (replicate/2, 0, "
+                         "p index, model << 24 | n)"));
+    set_attr(g.get(), "sampler", std::string("inversion of the pmf-window CDF with a guide table"));
+    set_attr(g.get(), "replicates", static_cast<std::int64_t>(s.replicates));
+    set_attr(g.get(), "target_se", s.target_se);
+    set_attr(g.get(), "max_replicates", static_cast<std::int64_t>(s.max_replicates));
+    for (auto name : engine::mc_metric_names) mc.push_back(make_metric(g.get(), std::string(name)));
+    const std::vector<hsize_t> rdims = {s.models.size(), s.n.size(), s.p.size()};
+    const std::vector<hsize_t> rchunk = {1, plan_.n_block, plan_.p_block};
+    mc_reps = create_double_dataset(g.get(), "replicates", rdims, rchunk);
+    set_attr(mc_reps.get(), "axes", std::vector<std::string>{"model", "n", "p"});
+    attach_scale(mc_reps.get(), scales[0].get(), 0, "model");
+    attach_scale(mc_reps.get(), scales[4].get(), 1, "n");
+    attach_scale(mc_reps.get(), scales[5].get(), 2, "p");
   }
   Handle sg = create_group(root, "summary");
   set_attr(sg.get(), "p_range",
@@ -169,85 +474,61 @@ void CubeWriter::create_layout() {
   const std::vector<hsize_t> sdims(dims.begin(), dims.end() - 1);
   const std::vector<hsize_t> schunk = {1, 1, 1, 1, plan_.n_block};
   const std::vector<std::string> saxes(axis_list.begin(), axis_list.end() - 1);
-  for (auto name : engine::stat_names) {
-    Handle d = create_double_dataset(sg.get(), std::string(name), sdims, schunk);
+  auto make_stat = [&](const std::string& name) {
+    Handle d = create_double_dataset(sg.get(), name, sdims, schunk);
     set_attr(d.get(), "axes", saxes);
     for (unsigned i = 0; i < 5; ++i) attach_scale(d.get(), scales[i].get(), i, axis_names[i]);
-    summary_.push_back(std::move(d));
+    return d;
+  };
+  std::vector<Handle> stats, mc_stats;
+  if (s.exact)
+    for (auto name : engine::stat_names) stats.push_back(make_stat(std::string(name)));
+  if (s.replicates > 0)
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+      mc_stats.push_back(make_stat("mc_" + std::string(engine::stat_names[k])));
+
+  // The chunks, one at a time in plan order.
+  for (const auto& c : plan_.chunks) {
+    const engine::ChunkResult r = read_record(c.id);
+    const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin, c.p_begin};
+    const std::vector<hsize_t> count = {1, S, L, M, c.n_count, c.p_count};
+    const std::vector<hsize_t> sstart = {c.model, 0, 0, 0, c.n_begin};
+    const std::vector<hsize_t> scount = {1, S, L, M, c.n_count};
+    if (r.has_exact)
+      for (std::size_t k = 0; k < engine::metric_count; ++k)
+        write_block(exact[k].get(), start, count, r.exact[k].data());
+    if (r.has_row_stats)
+      for (std::size_t k = 0; k < r.row_stats.size(); ++k)
+        write_block(stats[engine::grid_stat_count + k].get(), sstart, scount, r.row_stats[k].data());
+    if (r.has_grid_stats)
+      for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+        write_block(stats[k].get(), sstart, scount, r.grid_stats[k].data());
+    if (r.has_mc) {
+      for (std::size_t k = 0; k < engine::mc_metric_count; ++k)
+        write_block(mc[k].get(), start, count, r.mc[k].data());
+      write_block(mc_reps.get(), {c.model, c.n_begin, c.p_begin}, {1, c.n_count, c.p_count},
+                  r.mc_replicates.data());
+    }
+    if (r.has_mc_grid_stats)
+      for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+        write_block(mc_stats[k].get(), sstart, scount, r.mc_grid_stats[k].data());
+  }
+  // Grid statistics of rows split over chunks.
+  const std::size_t combos = engine::combo_count(s);
+  for (const auto& [key, values] : split_stats_) {
+    const std::size_t model = key.second / s.n.size(), n_begin = key.second % s.n.size();
+    const std::size_t count = values.size() / (engine::grid_stat_count * combos);
+    auto& target = key.first == 0 ? stats : mc_stats;
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+      write_block(target[k].get(), {model, 0, 0, 0, n_begin}, {1, S, L, M, count},
+                  values.data() + k * combos * count);
   }
   Handle pg = create_group(root, "progress");
   set_attr(pg.get(), "n_block", static_cast<std::int64_t>(plan_.n_block));
   set_attr(pg.get(), "p_block", static_cast<std::int64_t>(plan_.p_block));
-  done_ = write_vector(pg.get(), "done", std::vector<std::uint8_t>(plan_.chunks.size(), 0));
-  file_.flush();
-}
-
-std::vector<char> CubeWriter::completed() {
-  const auto flags = read_u8s(file_.id(), "/progress/done");
-  return std::vector<char>(flags.begin(), flags.end());
-}
-
-void CubeWriter::write_chunk(const engine::ChunkResult& r) {
-  const auto& c = r.spec;
-  const std::size_t S = scenario_.sides.size(), L = scenario_.levels.size(), M = scenario_.methods.size();
-  if (r.has_exact) {
-    const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin, c.p_begin};
-    const std::vector<hsize_t> count = {1, S, L, M, c.n_count, c.p_count};
-    for (std::size_t k = 0; k < engine::metric_count; ++k)
-      write_block(exact_[k].get(), start, count, r.exact[k].data());
-  }
-  if (r.has_grid_stats) {
-    const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin};
-    const std::vector<hsize_t> count = {1, S, L, M, c.n_count};
-    for (std::size_t k = 0; k < r.grid_stats.size(); ++k)
-      write_block(summary_[k].get(), start, count, r.grid_stats[k].data());
-  }
-  if (r.has_row_stats) {
-    const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin};
-    const std::vector<hsize_t> count = {1, S, L, M, c.n_count};
-    for (std::size_t k = 0; k < r.row_stats.size(); ++k)
-      write_block(summary_[engine::grid_stat_count + k].get(), start, count, r.row_stats[k].data());
-  }
-  pending_.push_back(c.id);
-}
-
-void CubeWriter::checkpoint() {
-  // Data first, then the flags that declare it complete, each flushed.
-  file_.flush();
-  const std::uint8_t one = 1;
-  for (std::size_t id : pending_) write_block_u8(done_.get(), {id}, {1}, &one);
-  pending_.clear();
-  file_.flush();
-}
-
-void CubeWriter::read_rows(Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                           std::size_t p_begin, std::size_t p_count, std::vector<double>& out) {
-  const std::size_t S = scenario_.sides.size(), L = scenario_.levels.size(), M = scenario_.methods.size();
-  out.assign(S * L * M * n_count * p_count, std::numeric_limits<double>::quiet_NaN());
-  if (!scenario_.exact) return;
-  read_block(exact_[engine::index(metric)].get(), {model, 0, 0, 0, n_begin, p_begin},
-             {1, S, L, M, n_count, p_count}, out.data());
-}
-
-void CubeWriter::write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,
-                                  const std::vector<double>& stats) {
-  const std::size_t S = scenario_.sides.size(), L = scenario_.levels.size(), M = scenario_.methods.size();
-  const std::size_t block = S * L * M * n_count;
-  for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
-    write_block(summary_[k].get(), {model, 0, 0, 0, n_begin}, {1, S, L, M, n_count},
-                stats.data() + k * block);
-}
-
-void CubeWriter::finish() {
-  set_attr(file_.id(), "complete", std::int64_t{1});
-  exact_.clear();
-  summary_.clear();
-  done_.reset();
-  file_.flush();
-  file_.close();
-  std::error_code ec;
-  fs::rename(temp_path_, final_path_, ec);
-  if (ec) throw CubeError(fmt::format("cannot rename {} to {}: {}", temp_path_, final_path_, ec.message()));
+  write_vector(pg.get(), "done", std::vector<std::uint8_t>(plan_.chunks.size(), 1));
+  set_attr(root, "complete", std::int64_t{1});
+  file.flush();
 }
 
 // ---------------------------------------------------------------- reading

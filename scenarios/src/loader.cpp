@@ -1,6 +1,7 @@
 #include "covergrid/scenarios/loader.hpp"
 
 #include "covergrid/engine/error.hpp"
+#include "covergrid/engine/random.hpp"
 #include "covergrid/engine/sha256.hpp"
 
 #include <fmt/format.h>
@@ -290,16 +291,40 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   if (const toml::node* ev_node = root.get("evaluate")) {
     if (!ev_node->is_table()) ctx.fail(ev_node, "evaluate must be a table, [evaluate]");
     const auto& ev = *ev_node->as_table();
-    reject_unknown(ctx, ev, "[evaluate] ", {"exact", "replicates"});
+    reject_unknown(ctx, ev, "[evaluate] ", {"exact", "replicates", "target_se", "max_replicates"});
     if (const auto* e = ev.get("exact")) s.exact = bool_of(ctx, *e, "[evaluate] exact");
-    if (const auto* r = ev.get("replicates")) {
+    const toml::node* r = ev.get("replicates");
+    if (r) {
       const std::int64_t v = integer_of(ctx, *r, "[evaluate] replicates");
       if (v < 0) ctx.fail(r, fmt::format("[evaluate] replicates = {} must not be negative", v));
-      if (v > 0)
-        ctx.fail(r,
-                 "[evaluate] replicates > 0: Monte Carlo evaluation is not available in this "
-                 "version yet; set replicates = 0");
+      if (v > max_replicates_per_cell)
+        ctx.fail(r, fmt::format("[evaluate] replicates = {} is above the limit of {} per cell", v,
+                                max_replicates_per_cell));
       s.replicates = static_cast<std::uint64_t>(v);
+    }
+    const toml::node* se = ev.get("target_se");
+    const toml::node* cap = ev.get("max_replicates");
+    if (se) {
+      const double v = number_of(ctx, *se, "[evaluate] target_se");
+      if (!(v > 0 && v < 0.5))
+        ctx.fail(se, fmt::format("[evaluate] target_se = {} is outside (0, 0.5)", value_text(*se)));
+      s.target_se = v;
+      if (!r) s.replicates = 1000;  // the first round
+      if (s.replicates == 0)
+        ctx.fail(r, "[evaluate] replicates = 0 with target_se: the first round needs replicates");
+      s.max_replicates = 1'000'000;
+    }
+    if (cap) {
+      if (!se)
+        ctx.fail(cap, "[evaluate] max_replicates goes with target_se (it caps the replicates it chooses)");
+      const std::int64_t v = integer_of(ctx, *cap, "[evaluate] max_replicates");
+      if (v < static_cast<std::int64_t>(s.replicates))
+        ctx.fail(cap,
+                 fmt::format("[evaluate] max_replicates = {} is below replicates = {}", v, s.replicates));
+      if (v > max_replicates_per_cell)
+        ctx.fail(cap, fmt::format("[evaluate] max_replicates = {} is above the limit of {} per cell", v,
+                                  max_replicates_per_cell));
+      s.max_replicates = static_cast<std::uint64_t>(v);
     }
     if (!s.exact && s.replicates == 0)
       ctx.fail(ev_node, "[evaluate] turns exact evaluation off and has no replicates: nothing to compute");
@@ -373,6 +398,9 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       if (!model_labels.insert(spec.label).second)
         ctx.fail(&item, fmt::format("[[model]] label \"{}\" is used twice", spec.label));
       s.models.push_back(spec);
+      if (s.models.size() > engine::max_stream_models)
+        ctx.fail(&item,
+                 fmt::format("[[model]] more than {} models in one scenario", engine::max_stream_models));
     }
   } else {
     s.models.push_back({});

@@ -41,11 +41,12 @@ class NullSink final : public e::ResultSink {
   std::vector<char> completed() override { return std::vector<char>(chunks_, 0); }
   void write_chunk(const e::ChunkResult& r) override { checksum += r.has_exact ? r.exact[0][0] : 0.0; }
   void checkpoint() override {}
-  void read_rows(e::Metric, std::size_t, std::size_t, std::size_t count, std::size_t, std::size_t width,
-                 std::vector<double>& out) override {
+  void read_rows(e::Source, std::size_t, std::size_t, std::size_t, std::size_t count, std::size_t,
+                 std::size_t width, std::vector<double>& out) override {
     out.assign(combos_ * count * width, 0.0);
   }
-  void write_grid_stats(std::size_t, std::size_t, std::size_t, const std::vector<double>&) override {}
+  void write_grid_stats(e::Source, std::size_t, std::size_t, std::size_t,
+                        const std::vector<double>&) override {}
   void finish() override {}
   void set_combos(std::size_t c) { combos_ = c; }
   double checksum = 0;

@@ -13,6 +13,7 @@
 #include <catch2/catch.hpp>
 #include <hdf5_hl.h>
 
+#include <atomic>
 #include <cstring>
 #include <filesystem>
 #include <fstream>
@@ -158,11 +159,60 @@ TEST_CASE("existing outputs are respected", "[output][cube]") {
   CHECK_THROWS_AS(o::inspect_output(other, false), covergrid::InputError);
   CHECK(fs::last_write_time(s.cube_path) == before);
   CHECK(o::inspect_output(other, true) == o::OutputState::fresh);
-  // An unfinished run of another scenario is refused too.
-  fs::copy_file(s.cube_path, o::partial_path(s.cube_path));
-  fs::remove(s.cube_path);
-  CHECK_THROWS_AS(o::inspect_output(other, false), covergrid::InputError);
-  CHECK(o::inspect_output(s, false) == o::OutputState::resumed);
+}
+
+TEST_CASE("an interrupted run resumes from its journal to the same cube", "[output][cube][resume]") {
+  ScratchDir dir("journal");
+  const auto s = scenario_from(text, dir.path().string());
+  // The reference: an uninterrupted run, moved aside.
+  run_to_cube(s);
+  const std::string reference = dir.file("reference.h5");
+  fs::rename(s.cube_path, reference);
+
+  const auto plan = e::make_plan(s, 4);  // many small chunks
+  {
+    o::CubeWriter w(s, plan, false);
+    std::atomic<bool> stop{false};
+    e::RunOptions opt;
+    opt.chunk_cells = 4;
+    opt.threads = 2;
+    opt.stop = &stop;
+    opt.progress = [&](std::size_t, std::size_t) { stop = true; };
+    const auto report = e::run_scenario(s, w, opt);
+    REQUIRE(report.interrupted);
+  }
+  CHECK_FALSE(fs::exists(s.cube_path));
+  REQUIRE(fs::exists(o::journal_path(s.cube_path)));
+  // A torn last record (a run killed mid-write) is dropped on resume.
+  { std::ofstream(o::journal_path(s.cube_path), std::ios::app | std::ios::binary) << "CKH1 torn record"; }
+  const auto other = scenario_from(std::string(text) + "\n# another scenario\n", dir.path().string());
+  CHECK_THROWS_WITH(o::inspect_output(other, false),
+                    Catch::Contains("unfinished run of a different scenario"));
+  REQUIRE(o::inspect_output(s, false) == o::OutputState::resumed);
+  {
+    o::CubeWriter w(s, plan, true);
+    const auto done = w.completed();
+    const auto count = std::count(done.begin(), done.end(), 1);
+    CHECK(count > 0);
+    CHECK(static_cast<std::size_t>(count) < plan.chunks.size());
+    e::RunOptions opt;
+    opt.chunk_cells = 4;
+    const auto report = e::run_scenario(s, w, opt);
+    CHECK(report.chunks_resumed == static_cast<std::size_t>(count));
+  }
+  CHECK_FALSE(fs::exists(o::journal_path(s.cube_path)));
+  // Same values as the uninterrupted run (whose chunking differed).
+  o::File a = o::File::open(reference, false), b = o::File::open(s.cube_path, false);
+  for (const std::string group : {"exact", "summary"})
+    for (std::size_t k = 0; k < (group == "exact" ? e::metric_count : e::stat_count); ++k) {
+      const std::string name =
+          "/" + group + "/" + std::string(group == "exact" ? e::metric_names[k] : e::stat_names[k]);
+      INFO(name);
+      std::vector<hsize_t> da, db;
+      const auto va = read_all(a.id(), name, da), vb = read_all(b.id(), name, db);
+      CHECK(da == db);
+      CHECK(std::memcmp(va.data(), vb.data(), va.size() * sizeof(double)) == 0);
+    }
 }
 
 TEST_CASE("foreign and damaged files are rejected as bad input", "[output][cube][bad-input]") {

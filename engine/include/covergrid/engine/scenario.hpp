@@ -29,7 +29,9 @@ struct Scenario {
   std::vector<Side> sides;     // distinct
 
   bool exact = true;
-  std::uint64_t replicates = 0;  // Monte Carlo replicates per cell; 0 = none
+  std::uint64_t replicates = 0;      // Monte Carlo replicates per cell; 0 = none
+  double target_se = 0;              // > 0: replicates per cell chosen to reach this coverage SE
+  std::uint64_t max_replicates = 0;  // the cap when target_se > 0
 
   std::vector<methods::MethodInstance> methods;
   std::vector<ModelSpec> models;

@@ -23,7 +23,14 @@ namespace covergrid::output {
 inline constexpr const char* cube_format_name = "covergrid-cube";
 inline constexpr std::array<const char*, 6> axis_names = {"model", "side", "level", "method", "n", "p"};
 
-/// The temporary name a cube is written under until it is complete.
+/// While a run is in progress its results go to an append-only journal
+/// beside the cube (`CUBE.journal`): a header with the scenario checksum and
+/// the chunk layout, then one record per finished chunk (length and checksum
+/// guarded). A killed run leaves at worst a torn last record, which resume
+/// drops; nothing complete is lost. When every chunk is in, the HDF5 cube is
+/// assembled chunk by chunk under a temporary name (`CUBE.partial`), renamed
+/// into place, and the journal removed.
+std::string journal_path(const std::string& cube_path);
 std::string partial_path(const std::string& cube_path);
 
 /// What preparing the output found.
@@ -32,35 +39,41 @@ enum class OutputState { fresh, resumed, up_to_date };
 /// Decides, before anything is written, what a run of `scenario` into its cube
 /// path will do: start fresh, resume an unfinished run of the same scenario,
 /// or find a complete cube of it. Throws InputError (exit 2) for a cube or an
-/// unfinished run of a different scenario, unless `overwrite`.
+/// unfinished run of a different scenario, or a foreign file in the way,
+/// unless `overwrite`.
 OutputState inspect_output(const engine::Scenario& scenario, bool overwrite);
 
-/// Writes the cube under partial_path() and renames it on finish().
+/// The ResultSink that writes the journal and, on finish(), the cube.
 class CubeWriter final : public engine::ResultSink {
  public:
-  /// Opens (resume) or creates the partial file; call inspect_output() first.
+  /// Opens (resume: validating the journal and dropping a torn tail) or
+  /// creates the journal; call inspect_output() first.
   CubeWriter(const engine::Scenario& scenario, const engine::Plan& plan, bool resume);
-  ~CubeWriter() override = default;
+  ~CubeWriter() override;
+  CubeWriter(const CubeWriter&) = delete;
+  CubeWriter& operator=(const CubeWriter&) = delete;
 
   std::vector<char> completed() override;
   void write_chunk(const engine::ChunkResult& result) override;
   void checkpoint() override;
-  void read_rows(engine::Metric metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                 std::size_t p_begin, std::size_t p_count, std::vector<double>& out) override;
-  void write_grid_stats(std::size_t model, std::size_t n_begin, std::size_t n_count,
+  void read_rows(engine::Source source, std::size_t metric, std::size_t model, std::size_t n_begin,
+                 std::size_t n_count, std::size_t p_begin, std::size_t p_count,
+                 std::vector<double>& out) override;
+  void write_grid_stats(engine::Source source, std::size_t model, std::size_t n_begin, std::size_t n_count,
                         const std::vector<double>& stats) override;
   void finish() override;
 
  private:
-  void create_layout();
+  engine::ChunkResult read_record(std::size_t chunk) const;
+  void assemble();
   const engine::Scenario& scenario_;
   const engine::Plan& plan_;
-  std::string final_path_, temp_path_;
-  File file_;
-  std::vector<Handle> exact_;    // one per metric
-  std::vector<Handle> summary_;  // one per stat
-  Handle done_;
-  std::vector<std::size_t> pending_;  // chunks written since the last checkpoint
+  std::string final_path_, journal_path_, temp_path_;
+  int fd_ = -1;
+  std::vector<std::int64_t> offsets_;  // record offset per chunk, -1 = not written
+  std::uint64_t end_ = 0;              // end of the last valid record
+  /// Grid statistics of split rows, [source][model * N + n][stat * combos + combo].
+  std::map<std::pair<int, std::size_t>, std::vector<double>> split_stats_;
 };
 
 /// A cube opened for reading; validates the format on open (InputError if the

@@ -5,6 +5,7 @@
 /// 1.2 is outside [0, 1]").
 #include "covergrid/engine/scenario.hpp"
 
+#include <cstdint>
 #include <string>
 #include <string_view>
 
@@ -23,5 +24,7 @@ std::string_view bundled_demo_text();
 
 /// Largest sample size a scenario may ask for.
 inline constexpr int max_sample_size = 10'000'000;
+/// Largest number of Monte Carlo replicates a cell may ask for.
+inline constexpr std::int64_t max_replicates_per_cell = 10'000'000'000;
 
 }  // namespace covergrid::scenarios

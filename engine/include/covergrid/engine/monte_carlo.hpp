@@ -1,0 +1,50 @@
+#pragma once
+/// Monte Carlo evaluation of a cell (design section 6): R replicates drawn
+/// once from the cell's counter-based stream, tallied into a histogram over
+/// x, and reduced against every method's interval table (common random
+/// numbers: all methods, levels and sides see the same draws, so their
+/// differences are paired). The cost is one draw per replicate plus one pass
+/// over the histogram per table, whatever the number of methods.
+#include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/interval_table.hpp"
+#include "covergrid/engine/random.hpp"
+
+#include <array>
+#include <cstdint>
+#include <string_view>
+#include <vector>
+
+namespace covergrid::engine {
+
+/// The Monte Carlo metrics: the exact ones plus the coverage's standard error.
+inline constexpr std::size_t mc_metric_count = 8;
+inline constexpr std::array<std::string_view, mc_metric_count> mc_metric_names = {
+    "coverage", "miss_low", "miss_high", "width", "width_sd", "degenerate", "overshoot", "coverage_se"};
+using McMetrics = std::array<double, mc_metric_count>;
+
+/// How many replicates a cell gets.
+struct ReplicateRule {
+  std::uint64_t replicates = 0;      // fixed count, or the first round when target_se > 0
+  double target_se = 0;              // 0 = fixed count
+  std::uint64_t max_replicates = 0;  // cap when target_se > 0
+};
+
+/// The draws of one cell as counts over the window's x.
+struct CellDraws {
+  std::vector<std::uint64_t> counts;  // counts[x - window.lo]
+  std::uint64_t replicates = 0;
+};
+
+/// Draws replicates [0, rule.replicates) (and, with a target standard error,
+/// further rounds doubling the count until every table's estimated standard
+/// error is at most the target or the cap is reached) into `draws`.
+/// The stopping rule uses (k + 1)/(R + 2) for each coverage so that a run of
+/// all-covered replicates does not stop it at a spurious zero error.
+void simulate_cell(const BinomialWindow& window, const CellStream& stream, const ReplicateRule& rule,
+                   const std::vector<const IntervalTable*>& tables, double p, CellDraws& draws);
+
+/// Every metric of a table from the draws. NaN for an unsupported table.
+McMetrics mc_metrics(const IntervalTable& table, const BinomialWindow& window, const CellDraws& draws,
+                     double p);
+
+}  // namespace covergrid::engine
