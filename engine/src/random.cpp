@@ -16,8 +16,8 @@ void CellStream::uniforms(std::uint64_t first, std::size_t count, double* out) c
   // A plain loop over consecutive counters: each call is independent, so the
   // compiler can interleave them; results are Random123's exactly.
   while (i < count) {
-    const philox4x32_ctr_t ctr = {{static_cast<std::uint32_t>(block), static_cast<std::uint32_t>(block >> 32),
-                                   cell_[0], cell_[1]}};
+    const philox4x32_ctr_t ctr = {
+        {static_cast<std::uint32_t>(block), static_cast<std::uint32_t>(block >> 32), cell_[0], cell_[1]}};
     const philox4x32_ctr_t r = philox4x32(ctr, key);
     const std::uint64_t a = (std::uint64_t{r.v[0]} << 32) | r.v[1];
     const std::uint64_t b = (std::uint64_t{r.v[2]} << 32) | r.v[3];
