@@ -9,7 +9,7 @@ void WindowSampler::build(const BinomialWindow& window) {
   total_ = window.cum[last_];
   // guide_[g] = the first i with cum[i + 1] > g * total / G: the draw for any
   // u in [g/G, (g+1)/G) starts its search there.
-  const std::size_t g_count = last_;
+  const std::size_t g_count = 4 * last_;  // 4 guide cells per x: the search is then almost always 0 or 1 step
   guide_.resize(g_count);
   std::size_t i = 0;
   for (std::size_t g = 0; g < g_count; ++g) {

@@ -5,14 +5,21 @@
 //   threads        a 2e5-cell grid on 1 and on 2 threads (whole run, null sink)
 //   prototype      cells/s on one thread, 5 methods, n = 5..200 x 2000 p
 //   memory         peak RSS of a full run to a cube with P and 10 P points of p
+//   mc-costs       per-replicate cost against the bare sampler loop; all methods vs one
+//   mc-threads     a Monte Carlo grid on 1 and 2 threads; the cost of 1e5 cells x 1e4 replicates
 #include "covergrid/engine/binomial_window.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
+#include "covergrid/engine/monte_carlo.hpp"
+#include "covergrid/engine/random.hpp"
+#include "covergrid/engine/sampler.hpp"
 #include "covergrid/engine/run.hpp"
 #include "covergrid/methods/registry.hpp"
 #include "covergrid/output/cube.hpp"
 #include "covergrid/scenarios/loader.hpp"
 
+#include <boost/random/binomial_distribution.hpp>
+#include <boost/random/mersenne_twister.hpp>
 #include <fmt/format.h>
 #include <sys/resource.h>
 #include <sys/wait.h>
@@ -188,6 +195,93 @@ void memory(const char* self) {
              ratio(c, b));
 }
 
+/// Monte Carlo: one cell, R = 1e5 replicates.
+void mc_costs() {
+  const int n = 200;
+  const double p = 0.3;
+  const std::uint64_t R = 100000;
+  e::BinomialWindow w;
+  w.fill(n, p);
+  const e::CellStream stream(11, 0, n, 5);
+  auto time_it = [](auto&& f) {
+    int reps = 0;
+    const double t0 = now();
+    double t = 0;
+    do {
+      f();
+      ++reps;
+      t = now() - t0;
+    } while (t < 0.5);
+    return t / reps;
+  };
+  // The bare loop: uniforms from the same stream and the same sampler, no tally.
+  e::WindowSampler sampler;
+  sampler.build(w);
+  std::vector<double> u(4096);
+  long sink = 0;
+  const double bare = time_it([&] {
+    for (std::uint64_t done = 0; done < R; done += u.size()) {
+      stream.uniforms(done, u.size(), u.data());
+      for (double v : u) sink += sampler.draw(v);
+    }
+  });
+  // Boost.Random's binomial (Mersenne Twister), for comparison.
+  boost::random::mt19937_64 mt(5);
+  boost::random::binomial_distribution<int> bd(n, p);
+  const double boost_time = time_it([&] {
+    for (std::uint64_t i = 0; i < R; ++i) sink += bd(mt);
+  });
+  auto cell = [&](const std::vector<const char*>& ids) {
+    std::vector<m::MethodInstance> inst;
+    std::vector<e::IntervalTable> tables;
+    for (const char* id : ids) inst.push_back(m::make_instance(id, {}));
+    for (const auto& mi : inst) tables.push_back(e::build_table(*mi.method, n, 0.95, m::Side::two_sided));
+    std::vector<const e::IntervalTable*> ptrs;
+    for (const auto& t : tables) ptrs.push_back(&t);
+    e::CellDraws draws;
+    const e::ReplicateRule rule{R, 0, 0};
+    return time_it([&] {
+      e::simulate_cell(w, stream, rule, ptrs, p, draws);
+      for (const auto* t : ptrs) sink += static_cast<long>(e::mc_metrics(*t, w, draws, p)[0] * 1000);
+    });
+  };
+  const double one = cell({"wilson"});
+  std::vector<const char*> all;
+  for (const auto& entry : m::registry()) all.push_back(entry.info.id.c_str());
+  const double many = cell(all);
+  if (sink == 42) fmt::print(" ");
+  fmt::print("mc-costs: one cell, n = {}, p = {}, R = {} replicates, one thread\n", n, p, R);
+  fmt::print("  bare sampler loop {:.2f} ns/draw; Boost.Random binomial {:.2f} ns/draw\n", bare / R * 1e9,
+             boost_time / R * 1e9);
+  fmt::print("  cell with 1 method {:.2f} ns/replicate: {:.2f} x the bare loop (target <= 2)\n",
+             one / R * 1e9, one / bare);
+  fmt::print("  cell with all {} methods {:.2f} ns/replicate: {:.2f} x one method (target <= 1.3)\n",
+             all.size(), many / R * 1e9, many / one);
+}
+
+void mc_threads() {
+  const auto s = covergrid::scenarios::load_scenario_text(std::string(R"(
+[grid]
+n = { from = 10, to = 400, step = 10 }
+p = { from = 0.001, to = 0.999, count = 2500 }
+levels = [0.95]
+[evaluate]
+exact = false
+replicates = 1000
+)") + five_methods,
+                                                          "bench.toml", "");
+  const double one = run_null(s, 1), two = run_null(s, 2);
+  const double cells = static_cast<double>(s.n.size() * s.p.size());
+  fmt::print("mc-threads: {} cells x 1000 replicates, 5 methods, Monte Carlo only, null sink\n",
+             s.n.size() * s.p.size());
+  fmt::print("  1 thread {:.3f} s, 2 threads {:.3f} s: speed-up {:.2f} (target >= 1.8)\n", one, two,
+             one / two);
+  fmt::print(
+      "  {:.3g} cell-replicates/s on 2 threads; a grid of 1e5 cells x 1e4 replicates would take about"
+      " {:.0f} s (linear extrapolation)\n",
+      cells * 1000 / two, 1e5 * 1e4 / (cells * 1000 / two));
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -197,5 +291,7 @@ int main(int argc, char** argv) {
   if (what == "all" || what == "threads") threads();
   if (what == "all" || what == "prototype") prototype();
   if (what == "all" || what == "memory") memory(argv[0]);
+  if (what == "all" || what == "mc-costs") mc_costs();
+  if (what == "all" || what == "mc-threads") mc_threads();
   return 0;
 }

@@ -79,7 +79,8 @@ std::vector<std::string> datasets(hid_t file) {
       file, H5_INDEX_NAME, H5_ITER_INC,
       [](hid_t g, const char* name, const H5L_info_t*, void* data) -> herr_t {
         H5O_info_t info;
-        if (H5Oget_info_by_name2(g, name, &info, H5O_INFO_BASIC, H5P_DEFAULT) >= 0 && info.type == H5O_TYPE_DATASET)
+        if (H5Oget_info_by_name2(g, name, &info, H5O_INFO_BASIC, H5P_DEFAULT) >= 0 &&
+            info.type == H5O_TYPE_DATASET)
           static_cast<std::vector<std::string>*>(data)->push_back(name);
         return 0;
       },

@@ -115,7 +115,8 @@ TEST_CASE("the sampler draws the binomial law (chi-square goodness of fit)", "[e
   }
   // The test has teeth: draws from p = 0.3 judged against 0.303 are rejected.
   const Gof wrong = goodness_of_fit(20, 0.303, 0.3, draws);
-  CHECK(wrong.stat > boost::math::quantile(boost::math::complement(boost::math::chi_squared(wrong.df), 1e-4)));
+  CHECK(wrong.stat >
+        boost::math::quantile(boost::math::complement(boost::math::chi_squared(wrong.df), 1e-4)));
 }
 
 TEST_CASE("simulated coverage agrees with exact coverage in every cell", "[engine][mc][slow]") {
@@ -190,7 +191,8 @@ id = "blaker"
       continue;
     }
     const int covered = static_cast<int>(std::lround(mc[i] * r));
-    const double lower_tail = m::binomial_cdf(covered, 4000, c), upper_tail = m::binomial_sf(covered - 1, 4000, c);
+    const double lower_tail = m::binomial_cdf(covered, 4000, c),
+                 upper_tail = m::binomial_sf(covered - 1, 4000, c);
     ++tail_checked;
     if (std::min(lower_tail, upper_tail) < alpha_each / 2) ++tail_failed;
   }
@@ -205,9 +207,9 @@ id = "blaker"
   mean /= k;
   for (double v : z) sq += (v - mean) * (v - mean);
   const double sd = std::sqrt(sq / (k - 1));
-  INFO(z.size() << " z-scores: max |z| " << worst << " (bound " << bound << "), mean " << mean << ", sd " << sd
-                << "; " << tail_checked << " low-count cells by exact tails, " << tail_failed << " failed; "
-                << exact_differ << " certain cells differ");
+  INFO(z.size() << " z-scores: max |z| " << worst << " (bound " << bound << "), mean " << mean << ", sd "
+                << sd << "; " << tail_checked << " low-count cells by exact tails, " << tail_failed
+                << " failed; " << exact_differ << " certain cells differ");
   CHECK(z.size() > 10000);
   CHECK(worst <= bound);
   CHECK(std::fabs(mean) <= 0.1);
@@ -254,11 +256,25 @@ id = "wald"
     for (std::size_t c = 0; c < 2; ++c) {
       const std::size_t at = sink.at(c, 0, i / 3) * 3 + i % 3;
       const double cov = sink.mc[0][at];
-      const double se = std::sqrt(((cov * reps + 1) / (reps + 2)) * (1 - (cov * reps + 1) / (reps + 2)) / reps);
+      const double se =
+          std::sqrt(((cov * reps + 1) / (reps + 2)) * (1 - (cov * reps + 1) / (reps + 2)) / reps);
       met = met && se <= 0.003;
     }
     CHECK((met || reps == 64000));
   }
   // p = 0.5 needs about 0.25 / 0.003^2 = 27778 replicates: more than the first round.
   CHECK(*std::max_element(sink.mc_replicates.begin(), sink.mc_replicates.end()) > 1000);
+}
+
+TEST_CASE("the batched generator equals Random123's philox4x32 bit for bit", "[engine][random]") {
+  const std::uint64_t seed = 0x1234567890abcdefull;
+  const e::CellStream stream(seed, 3, 777, 41);
+  const std::uint32_t key[2] = {static_cast<std::uint32_t>(seed), static_cast<std::uint32_t>(seed >> 32)};
+  for (std::uint64_t block : {0ull, 1ull, 63ull, 64ull, 1000003ull, 0x1ffffffffull}) {
+    const std::uint32_t ctr[4] = {static_cast<std::uint32_t>(block), static_cast<std::uint32_t>(block >> 32),
+                                  41, (3u << 24) | 777u};
+    std::uint32_t want[4];
+    e::philox4x32_10(ctr, key, want);
+    for (int word = 0; word < 4; ++word) CHECK(stream.raw_word(block, word) == want[word]);
+  }
 }

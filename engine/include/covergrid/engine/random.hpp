@@ -4,7 +4,7 @@
 ///
 /// Random123's Philox4x32-10 with key = (seed low 32 bits, seed high 32 bits)
 /// and counter = (replicate / 2, 0, p index, model << 24 | n). One call gives
-/// 128 bits, i.e. two 53-bit uniforms, for replicates 2k and 2k + 1. So a
+/// 128 bits, i.e. two 52-bit uniforms, for replicates 2k and 2k + 1. So a
 /// cell's draws never depend on which thread, chunk, shard or process
 /// computes it, and cells never share a counter (n < 2^24, model < 256).
 #include <cstddef>
@@ -18,9 +18,12 @@ inline constexpr std::uint32_t max_stream_n = (1u << 24) - 1;
 class CellStream {
  public:
   CellStream(std::uint64_t seed, std::uint32_t model, std::uint32_t n, std::uint32_t p_index);
-  /// Uniforms in [0, 1) (53 bits) for replicates first .. first + count - 1;
+  /// Uniforms in [0, 1) (52 bits) for replicates first .. first + count - 1;
   /// replicate r is half r % 2 of the Philox block r / 2, whatever `first` is.
   void uniforms(std::uint64_t first, std::size_t count, double* out) const;
+  /// Word `word` (0..3) of the batched generator's output for Philox block
+  /// `block`: the tests hold it equal to Random123's philox4x32.
+  std::uint32_t raw_word(std::uint64_t block, int word) const;
 
  private:
   std::uint32_t key_[2];
