@@ -582,6 +582,22 @@ std::string CubeReader::attr(const std::string& name) const {
 }
 
 bool CubeReader::has_exact() const { return exists(file_.id(), "exact/coverage"); }
+bool CubeReader::has_mc() const { return exists(file_.id(), "mc/coverage"); }
+
+std::vector<double> CubeReader::mc_replicates(std::size_t model, std::size_t n_index) const {
+  Handle d = open_dataset(file_.id(), "/mc/replicates");
+  std::vector<double> out(p.size());
+  read_block(d.get(), {model, n_index, 0}, {1, 1, p.size()}, out.data());
+  return out;
+}
+
+std::vector<double> CubeReader::mc_row(const std::string& metric, std::size_t model, std::size_t side,
+                                       std::size_t level, std::size_t method, std::size_t n_index) const {
+  Handle d = open_dataset(file_.id(), "/mc/" + metric);
+  std::vector<double> out(p.size());
+  read_block(d.get(), {model, side, level, method, n_index, 0}, {1, 1, 1, 1, 1, p.size()}, out.data());
+  return out;
+}
 
 std::vector<double> CubeReader::summary(const std::string& stat) const {
   Handle d = open_dataset(file_.id(), "/summary/" + stat);

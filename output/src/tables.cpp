@@ -53,11 +53,13 @@ void write_atomically(const std::string& path, const std::string& text) {
 }  // namespace
 
 std::vector<RankingRow> ranking(const CubeReader& cube) {
-  const auto inf = cube.summary("inf_coverage");
-  const auto cont = cube.summary("mean_coverage_continuous");
-  const auto rms = cube.summary("rms_deviation");
-  const auto below = cube.summary("share_below");
-  const auto width = cube.summary("mean_width");
+  // Exact figures where the cube has them; otherwise the simulated grid ones.
+  const bool ex = cube.has_exact();
+  const auto inf = cube.summary(ex ? "inf_coverage" : "mc_min_coverage");
+  const auto cont = cube.summary(ex ? "mean_coverage_continuous" : "mc_mean_coverage");
+  const auto rms = cube.summary(ex ? "rms_deviation" : "mc_rms_deviation");
+  const auto below = cube.summary(ex ? "share_below" : "mc_share_below");
+  const auto width = cube.summary(ex ? "mean_width" : "mc_mean_width");
   std::vector<RankingRow> out;
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
@@ -101,23 +103,30 @@ std::vector<RankingRow> ranking(const CubeReader& cube) {
 }
 
 std::vector<std::string> write_tables(const CubeReader& cube, const std::string& prefix) {
-  static const char* stats[] = {"mean_coverage",
-                                "min_coverage",
-                                "min_coverage_p",
-                                "inf_coverage",
-                                "inf_coverage_p",
-                                "inf_coverage_from",
-                                "mean_coverage_continuous",
-                                "rms_deviation",
-                                "share_below",
-                                "mean_width",
-                                "mean_miss_low",
-                                "mean_miss_high"};
+  std::vector<std::string> stats;
+  if (cube.has_exact())
+    stats = {"mean_coverage",
+             "min_coverage",
+             "min_coverage_p",
+             "inf_coverage",
+             "inf_coverage_p",
+             "inf_coverage_from",
+             "mean_coverage_continuous",
+             "rms_deviation",
+             "share_below",
+             "mean_width",
+             "mean_miss_low",
+             "mean_miss_high"};
+  if (cube.has_mc())
+    for (const char* name : {"mean_coverage", "min_coverage", "min_coverage_p", "rms_deviation",
+                             "share_below", "mean_width", "mean_miss_low", "mean_miss_high"})
+      stats.push_back(std::string("mc_") + name);
   std::vector<std::vector<double>> values;
-  for (const char* s : stats) values.push_back(cube.summary(s));
+  for (const auto& name : stats) values.push_back(cube.summary(name));
+  const std::size_t defined = 1;  // min_coverage (or mc_min_coverage): NaN where a method lacks the side
 
   std::string csv = "model,side,level,method,n";
-  for (const char* s : stats) csv += fmt::format(",{}", s);
+  for (const auto& name : stats) csv += "," + name;
   csv += '\n';
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
@@ -125,7 +134,7 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
         for (std::size_t m = 0; m < cube.methods.size(); ++m)
           for (std::size_t i = 0; i < cube.n.size(); ++i) {
             const std::size_t at = cube.summary_index(mo, s, l, m, i);
-            if (std::isnan(values[3][at])) continue;  // side not defined by the method
+            if (std::isnan(values[defined][at])) continue;  // side not defined by the method
             csv += fmt::format("{},{},{},\"{}\",{}", cube.models[mo], cube.sides[s], cube.levels[l],
                                cube.methods[m], cube.n[i]);
             for (const auto& v : values) {
@@ -151,14 +160,17 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
                     fs::path(cube.path()).filename().string(), cube.attr("scenario_sha256").substr(0, 16),
                     cube.attr("tool_version"));
   md += fmt::format(
-      "p range [{}, {}] ({} grid points), n from {} to {} ({} values). "
-      "Coverage figures are exact (binomial enumeration).\n\n",
-      cube.p.front(), cube.p.back(), cube.p.size(), cube.n.front(), cube.n.back(), cube.n.size());
+      "p range [{}, {}] ({} grid points), n from {} to {} ({} values). {}\n\n", cube.p.front(), cube.p.back(),
+      cube.p.size(), cube.n.front(), cube.n.back(), cube.n.size(),
+      cube.has_exact()
+          ? "Coverage figures are exact (binomial enumeration)."
+          : "Coverage figures are Monte Carlo estimates (see the cube's /mc group for standard errors).");
   md += std::string("> ") + coverage_caution + "\n\n";
   md +=
       "## Standing of the methods over the whole n range\n\n"
       "Ordered by the mean over n of the RMS deviation of grid coverage from nominal (closest first). "
-      "*Worst* is the smallest exact infimum of coverage over the continuous p range, at any n.\n";
+      "*Worst* is the smallest exact infimum of coverage over the continuous p range, at any n "
+      "(for a simulated-only cube: the smallest simulated grid coverage).\n";
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
       for (std::size_t l = 0; l < cube.levels.size(); ++l) {
@@ -202,10 +214,15 @@ std::string headline(const CubeReader& cube) {
                                cube.methods[r.method], width, pct(r.worst_inf), r.worst_inf_n,
                                pct(r.mean_coverage), pct(r.rms_deviation), pct(r.share_below), r.mean_width);
       }
-  out +=
-      "\nworst = smallest exact coverage infimum over the continuous p range at any n;\n"
-      "mean = exact mean coverage over that range (uniform p), averaged over n;\n"
-      "RMS = root-mean-square deviation of grid coverage from nominal, in percentage points.\n\n";
+  if (cube.has_exact())
+    out +=
+        "\nworst = smallest exact coverage infimum over the continuous p range at any n;\n"
+        "mean = exact mean coverage over that range (uniform p), averaged over n;\n"
+        "RMS = root-mean-square deviation of grid coverage from nominal, in percentage points.\n\n";
+  else
+    out +=
+        "\nMonte Carlo estimates: worst = smallest simulated grid coverage at any n; mean = mean over the\n"
+        "grid, averaged over n; RMS = deviation of grid coverage from nominal, in percentage points.\n\n";
   out += coverage_caution;
   out += '\n';
   return out;

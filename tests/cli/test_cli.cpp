@@ -9,6 +9,7 @@
 #include <fmt/format.h>
 #include <sys/wait.h>
 
+#include <algorithm>
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
@@ -164,4 +165,32 @@ TEST_CASE("run with no scenario runs the demo and a rerun finds it complete", "[
   const auto junk = exe(dir.path(), "inspect junk.h5");
   CHECK(junk.status == 2);
   CHECK(junk.err.find("junk.h5: is not an HDF5 file") != std::string::npos);
+}
+
+TEST_CASE("inspect --pair prints paired differences of a Monte Carlo cube", "[cli][mc]") {
+  ScratchDir dir("pair");
+  std::ofstream(dir.path() / "m.toml") << R"(
+seed = 8
+[grid]
+n = [10, 30]
+p = [0.1, 0.4]
+levels = [0.9]
+[evaluate]
+replicates = 2000
+[[method]]
+id = "wald"
+[[method]]
+id = "jeffreys"
+)";
+  REQUIRE(exe(dir.path(), "run --quiet m.toml").status == 0);
+  const auto r = exe(dir.path(), "inspect m.h5 --pair wald,jeffreys");
+  INFO(r.err);
+  CHECK(r.status == 0);
+  CHECK(r.out.find("coverage of wald minus jeffreys (paired, same draws)") != std::string::npos);
+  const auto csv = exe(dir.path(), "inspect m.h5 --pair wald,jeffreys --csv");
+  CHECK(csv.status == 0);
+  CHECK(std::count(csv.out.begin(), csv.out.end(), '\n') == 1 + 2 * 2);
+  const auto bad = exe(dir.path(), "inspect m.h5 --pair wald,nope");
+  CHECK(bad.status == 2);
+  CHECK(bad.err.find("no method labelled 'nope'") != std::string::npos);
 }

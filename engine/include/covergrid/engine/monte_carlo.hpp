@@ -48,3 +48,22 @@ McMetrics mc_metrics(const IntervalTable& table, const BinomialWindow& window, c
                      double p);
 
 }  // namespace covergrid::engine
+
+namespace covergrid::engine {
+
+/// The paired Monte Carlo difference of two methods' coverage in one cell:
+/// both judged on the same R draws (common random numbers), so the
+/// difference's standard error comes from the discordant replicates:
+/// D = 1[A covers] - 1[B covers], se = sqrt((P(D != 0) - E[D]^2) / R).
+struct PairedCell {
+  double coverage_a = 0, coverage_b = 0;
+  double difference = 0, difference_se = 0;
+  std::uint64_t replicates = 0;
+};
+
+/// Re-draws the cell (model index, n, p index) of a scenario with `seed` for
+/// `replicates` replicates (exactly the draws the run made) and pairs tables a and b.
+PairedCell paired_difference(std::uint64_t seed, std::size_t model, int n, std::size_t p_index, double p,
+                             std::uint64_t replicates, const IntervalTable& a, const IntervalTable& b);
+
+}  // namespace covergrid::engine

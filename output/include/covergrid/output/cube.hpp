@@ -93,6 +93,12 @@ class CubeReader {
   std::map<std::string, std::map<std::string, std::string>> method_info;
 
   bool has_exact() const;
+  bool has_mc() const;
+  /// Monte Carlo replicates per p for (model, n index).
+  std::vector<double> mc_replicates(std::size_t model, std::size_t n_index) const;
+  /// One Monte Carlo metric over p for a single (model, side, level, method, n).
+  std::vector<double> mc_row(const std::string& metric, std::size_t model, std::size_t side,
+                             std::size_t level, std::size_t method, std::size_t n_index) const;
   /// A summary statistic, whole, laid out [model][side][level][method][n].
   std::vector<double> summary(const std::string& stat) const;
   /// One exact metric over p for a single (model, side, level, method, n).
