@@ -140,9 +140,14 @@ TEST_CASE("the executable rejects every malformed scenario without writing", "[c
 
 TEST_CASE("run with no scenario runs the demo and a rerun finds it complete", "[cli][e2e]") {
   ScratchDir dir("demo");
-  const auto r = exe(dir.path(), "run --quiet");
+  const auto r = exe(dir.path(), "run");
   INFO(r.err);
   REQUIRE(r.status == 0);
+  // Not a terminal: plain progress lines (at least the closing one), no redraws.
+  CHECK(r.err.find("running the bundled demo") != std::string::npos);
+  CHECK(r.err.find("progress: ") != std::string::npos);
+  CHECK(r.err.find("cells/s") != std::string::npos);
+  CHECK(r.err.find('\r') == std::string::npos);
   CHECK(r.out.find("nominal 95%") != std::string::npos);
   CHECK(r.out.find("clopper-pearson") != std::string::npos);
   CHECK(r.out.find("long-run property") != std::string::npos);
