@@ -537,7 +537,8 @@ CubeReader::CubeReader(const std::string& path) : path_(path) {
   try {
     file_ = File::open(path, false);
   } catch (const CubeError&) {
-    throw InputError(path, fs::exists(path) ? "is not an HDF5 file" : "does not exist");
+    throw InputError(
+        path, fs::exists(path) ? "is not an HDF5 file (or is damaged or truncated)" : "does not exist");
   }
   const hid_t root = file_.id();
   try {

@@ -44,7 +44,11 @@ class Context {
 std::string value_text(const toml::node& node) {
   if (auto s = node.value_exact<std::string>()) return '"' + *s + '"';
   if (auto i = node.value_exact<std::int64_t>()) return std::to_string(*i);
-  if (auto d = node.value_exact<double>()) return fmt::format("{}", *d);
+  if (auto d = node.value_exact<double>()) {
+    std::string t = fmt::format("{}", *d);
+    if (t.find_first_of(".eEn") == std::string::npos) t += ".0";  // 1.0 stays 1.0, as written
+    return t;
+  }
   if (auto b = node.value_exact<bool>()) return *b ? "true" : "false";
   if (node.is_table()) return "{...}";
   if (node.is_array()) return "[...]";
@@ -256,7 +260,7 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
     for (const auto* i : items) {
       const double v = number_of(ctx, *i, "[grid] levels entries");
       if (!(v > 0 && v < 1))
-        ctx.fail(i, fmt::format("[grid] levels entry {} is outside (0, 1)", value_text(*i)));
+        ctx.fail(i, fmt::format("[grid] levels value {} is outside (0, 1)", value_text(*i)));
       if (std::find(s.levels.begin(), s.levels.end(), v) != s.levels.end())
         ctx.fail(i, fmt::format("[grid] levels lists {} twice", value_text(*i)));
       s.levels.push_back(v);
@@ -428,6 +432,20 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   };
   s.cube_path = resolve(cube);
   s.tables_prefix = resolve(tables);
+  // A missing output folder is bad input, named here with its key and line.
+  auto check_folder = [&](const std::string& path, const char* key) {
+    if (path.empty()) return;
+    const fs::path parent = fs::path(path).parent_path();
+    if (parent.empty() || fs::is_directory(parent)) return;
+    const toml::node* out_node = root.get("output");
+    const toml::node* at = out_node && out_node->is_table() ? out_node->as_table()->get(key) : nullptr;
+    ctx.fail(at,
+             fmt::format("[output] {} = \"{}\": the folder {} does not exist", key, path, parent.string()));
+  };
+  if (!base_dir.empty() || fs::path(s.cube_path).has_parent_path()) {
+    check_folder(s.cube_path, "cube");
+    check_folder(s.tables_prefix, "tables");
+  }
   return s;
 }
 

@@ -18,6 +18,9 @@ namespace fs = std::filesystem;
 using covergrid::test::scenario_from;
 
 TEST_CASE("grid forms expand as documented", "[scenarios]") {
+  covergrid::test::ScratchDir dir("forms");
+  fs::create_directories(dir.path() / "sub");
+  const std::string base = dir.path().string();
   const auto s = scenario_from(R"(
 title = "forms"
 seed = 11
@@ -35,7 +38,7 @@ id = "bayes-hpd"
 a = 0.5
 b = 2
 )",
-                               "/data/run");
+                               base);
   CHECK(s.title == "forms");
   CHECK(s.seed == 11);
   CHECK(s.n == std::vector<int>{10, 32, 100, 316, 1000});
@@ -50,8 +53,8 @@ b = 2
   CHECK(s.methods[0].label == "jeffreys-plain");
   CHECK(s.methods[1].label == "bayes-hpd(a=0.5,b=2)");
   CHECK(s.models.size() == 1);
-  CHECK(s.cube_path == "/data/run/test.h5");
-  CHECK(s.tables_prefix == "/data/run/test");
+  CHECK(s.cube_path == base + "/test.h5");
+  CHECK(s.tables_prefix == base + "/test");
   CHECK(s.sha256.size() == 64);
 
   const auto t = scenario_from(R"(
@@ -65,12 +68,12 @@ id = "wald"
 cube = "sub/x.h5"
 tables = ""
 )",
-                               "base");
+                               base);
   CHECK(t.n == std::vector<int>{5, 10, 15, 20});
   REQUIRE(t.p.size() == 5);
   CHECK(t.p.back() == Approx(0.5));
   CHECK(t.sides == std::vector<covergrid::methods::Side>{covergrid::methods::Side::two_sided});
-  CHECK(t.cube_path == "base/sub/x.h5");
+  CHECK(t.cube_path == base + "/sub/x.h5");
   CHECK(t.tables_prefix.empty());
   CHECK(t.exact);
 }

@@ -73,13 +73,14 @@ std::string fmt_limit(double v) { return fmt::format("{:.6f}", v); }
 /// seconds otherwise.
 class Progress {
  public:
-  Progress(std::ostream& err, bool quiet, bool tty) : err_(err), quiet_(quiet), tty_(tty) {}
+  Progress(std::ostream& err, bool quiet, bool tty)
+      : err_(err), quiet_(quiet), tty_(tty), start_(std::chrono::steady_clock::now()), last_(start_) {}
   void update(std::size_t done, std::size_t total) {
     if (quiet_) return;
     const auto now = std::chrono::steady_clock::now();
     if (!started_) {
-      start_ = last_ = now;
-      start_done_ = done;
+      // The rate counts from the start of the run; resumed cells do not count.
+      start_done_ = resumed_;
       started_ = true;
     }
     const double elapsed = std::chrono::duration<double>(now - start_).count();
@@ -114,6 +115,9 @@ class Progress {
   bool quiet_, tty_, started_ = false;
   std::chrono::steady_clock::time_point start_, last_;
   std::size_t start_done_ = 0;
+
+ public:
+  std::size_t resumed_ = 0;  // cells already done when the run started
 };
 
 int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, std::ostream& out,
@@ -131,8 +135,13 @@ int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, st
     output::CubeWriter writer(scenario, plan, state == output::OutputState::resumed);
     if (state == output::OutputState::resumed && !quiet)
       err << fmt::format("covergrid: resuming the unfinished run in {}\n",
-                         output::partial_path(scenario.cube_path));
+                         output::journal_path(scenario.cube_path));
     Progress progress(err, quiet, isatty(STDERR_FILENO) != 0);
+    {
+      const auto done = writer.completed();
+      for (const auto& c : plan.chunks)
+        if (done[c.id]) progress.resumed_ += c.n_count * c.p_count;
+    }
     engine::RunOptions options;
     options.threads = threads;
     options.stop = &stop_requested;
@@ -155,12 +164,12 @@ int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, st
       err << fmt::format(
           "covergrid: stopped; {} of {} chunks are saved in {}; run the same command to resume\n",
           report.chunks_resumed + report.chunks_computed, report.chunks_total,
-          output::partial_path(scenario.cube_path));
+          output::journal_path(scenario.cube_path));
       return exit_internal;
     }
   }
   output::CubeReader cube(scenario.cube_path);
-  out << fmt::format("{}\ncube: {}\n", scenario.title.empty() ? "covergrid run" : scenario.title,
+  out << fmt::format("{}\ncube: {}\n", scenario.title.empty() ? scenario.source_name : scenario.title,
                      scenario.cube_path);
   if (!scenario.tables_prefix.empty())
     for (const auto& p : output::write_tables(cube, scenario.tables_prefix)) out << "table: " << p << '\n';
@@ -336,10 +345,10 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
 }  // namespace
 
 int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
-  CLI::App app{
-      fmt::format("covergrid {} — how confidence intervals for a proportion really behave: exact\n"
-                  "coverage, tail misses and width of interval methods over grids of n and p.",
-                  tool_version)};
+  CLI::App app{fmt::format("covergrid {} — how confidence intervals for a proportion really behave: exact\n"
+                           "coverage, tail misses and width of interval methods over grids of n and p.",
+                           tool_version),
+               "covergrid"};
   app.require_subcommand(1);
   app.set_version_flag("--version", std::string(tool_version));
   app.footer(std::string("\n") + output::coverage_caution);
@@ -350,7 +359,16 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   auto* run =
       app.add_subcommand("run", "Evaluate every method on a scenario's grid; write the cube and tables");
   run->add_option("SCENARIO", scenario_file, "scenario file (TOML); without it, the bundled demo");
-  run->add_option("--threads", threads, "worker threads (default: all cores)")->check(CLI::PositiveNumber);
+  run->add_option("--threads", threads, "worker threads (default: all cores)")
+      ->check(CLI::Validator(
+          [](std::string& v) {
+            char* end = nullptr;
+            const long k = std::strtol(v.c_str(), &end, 10);
+            return (end && *end == '\0' && !v.empty() && k >= 1 && k <= 4096)
+                       ? std::string()
+                       : std::string("must be an integer from 1 to 4096");
+          },
+          "INT>=1"));
   run->add_flag("--quiet", quiet, "no progress display");
   run->add_flag("--overwrite", overwrite, "replace an existing cube or unfinished run of another scenario");
 
