@@ -592,12 +592,17 @@ std::vector<double> CubeReader::mc_replicates(std::size_t model, std::size_t n_i
   return out;
 }
 
-std::vector<double> CubeReader::mc_row(const std::string& metric, std::size_t model, std::size_t side,
-                                       std::size_t level, std::size_t method, std::size_t n_index) const {
-  Handle d = open_dataset(file_.id(), "/mc/" + metric);
+std::vector<double> CubeReader::row(const std::string& dataset, std::size_t model, std::size_t side,
+                                    std::size_t level, std::size_t method, std::size_t n_index) const {
+  Handle d = open_dataset(file_.id(), dataset);
   std::vector<double> out(p.size());
   read_block(d.get(), {model, side, level, method, n_index, 0}, {1, 1, 1, 1, 1, p.size()}, out.data());
   return out;
+}
+
+std::vector<double> CubeReader::mc_row(const std::string& metric, std::size_t model, std::size_t side,
+                                       std::size_t level, std::size_t method, std::size_t n_index) const {
+  return row("/mc/" + metric, model, side, level, method, n_index);
 }
 
 std::vector<double> CubeReader::summary(const std::string& stat) const {
@@ -612,10 +617,7 @@ std::vector<double> CubeReader::summary(const std::string& stat) const {
 
 std::vector<double> CubeReader::exact_row(const std::string& metric, std::size_t model, std::size_t side,
                                           std::size_t level, std::size_t method, std::size_t n_index) const {
-  Handle d = open_dataset(file_.id(), "/exact/" + metric);
-  std::vector<double> out(p.size());
-  read_block(d.get(), {model, side, level, method, n_index, 0}, {1, 1, 1, 1, 1, p.size()}, out.data());
-  return out;
+  return row("/exact/" + metric, model, side, level, method, n_index);
 }
 
 }  // namespace covergrid::output

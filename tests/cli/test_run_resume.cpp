@@ -25,6 +25,7 @@ using covergrid::test::ScratchDir;
 namespace {
 
 // One chunk per n row (2048 p points), so a run has 80 chunks to be killed among.
+// The grid is an invented test scenario: no number here is a reference value.
 const char* scenario_text = R"(
 title = "resume and determinism"
 seed = 31337
@@ -71,6 +72,18 @@ int wait_status(pid_t pid) {
 }
 
 int run(const fs::path& dir, const std::vector<std::string>& args) { return wait_status(spawn(dir, args)); }
+
+/// Waits (up to a minute) until `file` exists and holds more than `bytes`:
+/// the run is then part-way through its chunks.
+void wait_for_bytes(const fs::path& file, std::uintmax_t bytes) {
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
+  while (std::chrono::steady_clock::now() < deadline) {
+    std::error_code ec;
+    const auto size = fs::file_size(file, ec);
+    if (!ec && size > bytes) return;
+    std::this_thread::sleep_for(std::chrono::milliseconds(5));
+  }
+}
 
 /// Every dataset path in a file.
 std::vector<std::string> datasets(hid_t file) {
@@ -130,13 +143,7 @@ TEST_CASE("1 and 2 threads give byte-identical datasets; a SIGKILLed run resumes
   // Kill mid-way: wait until the journal holds some records, then SIGKILL.
   const pid_t pid = spawn(killed.path(), {"run", "r.toml", "--threads", "2", "--quiet"});
   const fs::path journal = killed.path() / "r.h5.journal";
-  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
-  while (std::chrono::steady_clock::now() < deadline) {
-    std::error_code ec;
-    const auto size = fs::file_size(journal, ec);
-    if (!ec && size > 20'000'000) break;
-    std::this_thread::sleep_for(std::chrono::milliseconds(5));
-  }
+  wait_for_bytes(journal, 20'000'000);
   kill(pid, SIGKILL);
   CHECK(wait_status(pid) == 128 + SIGKILL);
   REQUIRE(fs::exists(journal));
@@ -152,13 +159,7 @@ TEST_CASE("SIGINT stops at a chunk boundary and the run resumes", "[cli][e2e][re
   write_scenario(dir.path());
   const pid_t pid = spawn(dir.path(), {"run", "r.toml", "--threads", "2"});
   const fs::path journal = dir.path() / "r.h5.journal";
-  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
-  while (std::chrono::steady_clock::now() < deadline) {
-    std::error_code ec;
-    const auto size = fs::file_size(journal, ec);
-    if (!ec && size > 10'000'000) break;
-    std::this_thread::sleep_for(std::chrono::milliseconds(5));
-  }
+  wait_for_bytes(journal, 10'000'000);
   kill(pid, SIGINT);
   const int status = wait_status(pid);
   std::ifstream err(dir.path() / "stderr.txt");

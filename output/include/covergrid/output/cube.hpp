@@ -111,6 +111,8 @@ class CubeReader {
   }
 
  private:
+  std::vector<double> row(const std::string& dataset, std::size_t model, std::size_t side, std::size_t level,
+                          std::size_t method, std::size_t n_index) const;
   std::string path_;
   File file_;
   bool complete_ = false;
