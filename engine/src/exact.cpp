@@ -2,6 +2,8 @@
 
 #include "covergrid/methods/numerics.hpp"
 
+#include <boost/math/tools/minima.hpp>
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -144,7 +146,7 @@ double set_probability(const CoveredSet& s, double p) {
 
 }  // namespace
 
-InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi) {
+InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi, double stop_below) {
   InfimumResult best;
   if (!table.supported) return {nan, nan, 0, false};
   const int n = table.n;
@@ -170,7 +172,7 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
 
   best.value = std::numeric_limits<double>::infinity();
   auto consider = [&](double value, double where, int from) {
-    if (value < best.value) best = {value, where, from, best.refined};
+    if (value < best.value) best = {value, where, from, best.refined, value < stop_below};
   };
   // The point value at p_lo itself (a closed range includes it).
   {
@@ -181,7 +183,7 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
     }
     consider(at, p_lo, 0);
   }
-  if (p_hi <= p_lo) return best;
+  if (p_hi <= p_lo || best.stopped) return best;
 
   // Within a segment the minimum is at an end, as a one-sided limit. Where
   // only entries happen at an endpoint the limit from below is the smaller
@@ -224,6 +226,7 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
     if (exits && covered.contiguous()) consider(set_probability(covered, last), last, +1);
     e = group_end;
     left = last;
+    if (best.stopped) return best;
   }
   if (!covered.contiguous())
     refine(left, p_hi);
@@ -241,6 +244,21 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
   return best;
 }
 
+namespace {
+
+/// The integral of P(X = x) over p in [a, b] for X ~ Bin(n, p), times n + 1:
+/// I_b - I_a for Beta(x+1, n-x+1), taken on the smaller-tail side.
+double beta_mass(int x, int n, double a, double b) {
+  if (b <= a) return 0.0;
+  const double s = x + 1.0, t = n - x + 1.0;
+  const double mean = s / (s + t);
+  if (b <= mean) return methods::beta_cdf(s, t, b) - methods::beta_cdf(s, t, a);
+  if (a >= mean) return methods::beta_ccdf(s, t, a) - methods::beta_ccdf(s, t, b);
+  return 1.0 - methods::beta_cdf(s, t, a) - methods::beta_ccdf(s, t, b);
+}
+
+}  // namespace
+
 double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi) {
   if (!table.supported) return nan;
   const int n = table.n;
@@ -248,22 +266,123 @@ double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_h
   double sum = 0;
   for (int x = 0; x <= n; ++x) {
     const std::size_t i = static_cast<std::size_t>(x);
-    const double a = std::max(table.lower[i], p_lo);
-    const double b = std::min(table.upper[i], p_hi);
-    if (b <= a) continue;
-    // I_b - I_a for Beta(x+1, n-x+1); taken on the smaller-tail side.
-    const double s = x + 1.0, t = n - x + 1.0;
-    const double mean = s / (s + t);
-    double mass = 0;
-    if (b <= mean)
-      mass = methods::beta_cdf(s, t, b) - methods::beta_cdf(s, t, a);
-    else if (a >= mean)
-      mass = methods::beta_ccdf(s, t, a) - methods::beta_ccdf(s, t, b);
-    else
-      mass = 1.0 - methods::beta_cdf(s, t, a) - methods::beta_ccdf(s, t, b);
-    sum += mass;
+    sum += beta_mass(x, n, std::max(table.lower[i], p_lo), std::min(table.upper[i], p_hi));
   }
   return sum / ((n + 1.0) * (p_hi - p_lo));
+}
+
+std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo, double p_hi) {
+  if (!table.supported) return {nan, nan};
+  const int n = table.n;
+  if (p_hi <= p_lo) {
+    double low = 0, high = 0;
+    for (int x = 0; x <= n; ++x) {
+      const std::size_t i = static_cast<std::size_t>(x);
+      if (table.upper[i] < p_lo) low += methods::binomial_pmf(x, n, p_lo);
+      if (table.lower[i] > p_lo) high += methods::binomial_pmf(x, n, p_lo);
+    }
+    return {low, high};
+  }
+  double low = 0, high = 0;
+  for (int x = 0; x <= n; ++x) {
+    const std::size_t i = static_cast<std::size_t>(x);
+    low += beta_mass(x, n, std::max(table.upper[i], p_lo), p_hi);   // U_x < p
+    high += beta_mass(x, n, p_lo, std::min(table.lower[i], p_hi));  // L_x > p
+  }
+  const double scale = (n + 1.0) * (p_hi - p_lo);
+  return {low / scale, high / scale};
+}
+
+BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, double p_hi, double threshold) {
+  BelowMeasure out;
+  if (!table.supported) return {nan, false};
+  const int n = table.n;
+  if (p_hi <= p_lo) {
+    out.measure = 0;  // a single point has measure zero
+    return out;
+  }
+  std::vector<double> cuts;
+  cuts.reserve(2 * static_cast<std::size_t>(n) + 4);
+  cuts.push_back(p_lo);
+  for (int x = 0; x <= n; ++x) {
+    const std::size_t i = static_cast<std::size_t>(x);
+    for (double e : {table.lower[i], table.upper[i]})
+      if (e > p_lo && e < p_hi) cuts.push_back(e);
+  }
+  cuts.push_back(p_hi);
+  std::sort(cuts.begin(), cuts.end());
+  // Merge endpoints closer than the limits' precision (as coverage_infimum does).
+  std::vector<double> ends;
+  ends.reserve(cuts.size());
+  for (double c : cuts)
+    if (ends.empty() || c > ends.back() + endpoint_merge_tolerance) ends.push_back(c);
+  if (ends.back() < p_hi) ends.back() = p_hi;
+
+  for (std::size_t k = 0; k + 1 < ends.size(); ++k) {
+    const double a = ends[k], b = ends[k + 1];
+    const double mid = 0.5 * (a + b);
+    if (table.monotone) {
+      const auto* lo = table.lower.data();
+      const auto* up = table.upper.data();
+      const std::size_t size = table.lower.size();
+      const int first = static_cast<int>(std::lower_bound(up, up + size, mid) - up);     // first U_x >= mid
+      const int last = static_cast<int>(std::upper_bound(lo, lo + size, mid) - lo) - 1;  // last L_x <= mid
+      auto f = [&](double p) { return run_probability(first, last, n, p); };
+      const double fa = f(a), fb = f(b);
+      if (fa >= threshold && fb >= threshold) continue;  // unimodal: f >= min(fa, fb) on [a, b]
+      auto g = [&](double p) { return f(p) - threshold; };
+      if (fa < threshold && fb < threshold) {
+        // Both ends below: the segment is wholly below unless its maximum rises above.
+        const auto top = boost::math::tools::brent_find_minima([&](double p) { return -f(p); }, a, b, 52);
+        const double pm = top.first, fm = -top.second;
+        if (fm < threshold) {
+          out.measure += b - a;
+        } else {
+          const double r1 = methods::solve_bracketed(g, a, pm, "coverage crossing");
+          const double r2 = methods::solve_bracketed(g, pm, b, "coverage crossing");
+          out.measure += (r1 - a) + (b - r2);
+        }
+      } else if (fa < threshold) {
+        out.measure += methods::solve_bracketed(g, a, b, "coverage crossing") - a;
+      } else {
+        out.measure += b - methods::solve_bracketed(g, a, b, "coverage crossing");
+      }
+    } else {
+      CoveredSet covered(n);
+      for (int x = 0; x <= n; ++x) {
+        const std::size_t i = static_cast<std::size_t>(x);
+        if (table.lower[i] <= mid && mid <= table.upper[i]) covered.set(x, true);
+      }
+      if (covered.contiguous()) {
+        const int first = covered.empty() ? 1 : covered.first();
+        const int last = covered.empty() ? 0 : covered.last();
+        auto g = [&](double p) { return run_probability(first, last, n, p) - threshold; };
+        const double ga = g(a), gb = g(b);
+        if (ga >= 0 && gb >= 0) continue;
+        if (ga < 0 && gb < 0) {
+          const auto top = boost::math::tools::brent_find_minima([&](double p) { return -g(p); }, a, b, 52);
+          if (-top.second < 0)
+            out.measure += b - a;
+          else
+            out.measure += (methods::solve_bracketed(g, a, top.first, "coverage crossing") - a) +
+                           (b - methods::solve_bracketed(g, top.first, b, "coverage crossing"));
+        } else if (ga < 0) {
+          out.measure += methods::solve_bracketed(g, a, b, "coverage crossing") - a;
+        } else {
+          out.measure += b - methods::solve_bracketed(g, a, b, "coverage crossing");
+        }
+      } else {
+        // A covered set with gaps need not be unimodal: sampled, and flagged.
+        out.approximate = true;
+        constexpr int points = 65;
+        int below = 0;
+        for (int i = 0; i < points; ++i)
+          if (set_probability(covered, a + (b - a) * (i + 0.5) / points) < threshold) ++below;
+        out.measure += (b - a) * below / points;
+      }
+    }
+  }
+  return out;
 }
 
 }  // namespace covergrid::engine

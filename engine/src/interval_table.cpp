@@ -2,7 +2,10 @@
 
 namespace covergrid::engine {
 
-IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side) {
+namespace {
+
+IntervalTable build(const methods::IntervalMethod& method, int n, double level, methods::Side side,
+                    bool mirror) {
   IntervalTable t;
   t.n = n;
   if (!method.supports(side)) {
@@ -17,18 +20,36 @@ IntervalTable build_table(const methods::IntervalMethod& method, int n, double l
   t.overshoot.resize(size);
   t.monotone = true;
   for (int x = 0; x <= n; ++x) {
-    const auto lim = methods::interval(method, x, n, level, side);
     const std::size_t i = static_cast<std::size_t>(x);
-    t.lower[i] = lim.lower;
-    t.upper[i] = lim.upper;
-    t.width[i] = lim.upper - lim.lower;
-    t.degenerate[i] = lim.upper == lim.lower ? 1.0 : 0.0;
-    t.overshoot[i] = (lim.raw_lower < 0.0 || lim.raw_upper > 1.0) ? 1.0 : 0.0;
+    if (mirror && x > n / 2) {
+      const std::size_t j = static_cast<std::size_t>(n - x);  // already computed
+      t.lower[i] = 1.0 - t.upper[j];
+      t.upper[i] = 1.0 - t.lower[j];
+      t.overshoot[i] = t.overshoot[j];
+    } else {
+      const auto lim = methods::interval(method, x, n, level, side);
+      t.lower[i] = lim.lower;
+      t.upper[i] = lim.upper;
+      t.overshoot[i] = (lim.raw_lower < 0.0 || lim.raw_upper > 1.0) ? 1.0 : 0.0;
+    }
+    t.width[i] = t.upper[i] - t.lower[i];
+    t.degenerate[i] = t.upper[i] == t.lower[i] ? 1.0 : 0.0;
     if (t.degenerate[i] != 0.0) t.degenerate_x.push_back(x);
     if (t.overshoot[i] != 0.0) t.overshoot_x.push_back(x);
     if (x > 0 && (t.lower[i] < t.lower[i - 1] || t.upper[i] < t.upper[i - 1])) t.monotone = false;
   }
   return t;
+}
+
+}  // namespace
+
+IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side) {
+  return build(method, n, level, side, false);
+}
+
+IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n, double level,
+                                   methods::Side side) {
+  return build(method, n, level, side, side == methods::Side::two_sided && method.symmetric());
 }
 
 }  // namespace covergrid::engine

@@ -12,6 +12,8 @@
 #include <functional>
 #include <ostream>
 #include <string>
+#include <utility>
+#include <vector>
 
 namespace covergrid::cli {
 
@@ -24,10 +26,24 @@ Command add_run_command(CLI::App& app);
 Command add_intervals_command(CLI::App& app);
 Command add_methods_command(CLI::App& app);
 Command add_inspect_command(CLI::App& app);
+Command add_audit_command(CLI::App& app);
+Command add_plan_command(CLI::App& app);
+Command add_rank_command(CLI::App& app);
 
 /// Parses "id" or "id:key=value,key=value" into a method instance; errors
 /// name `option` (e.g. "--method").
 methods::MethodInstance parse_method_option(const std::string& text, const std::string& option = "--method");
+
+/// "A:B" (every n from A to B), "A:B:S" (step S), "A,B,C" or "A".
+std::vector<int> parse_n_set(const std::string& text, const std::string& option);
+/// "LO:HI" or one value, inside [0, 1].
+std::pair<double, double> parse_p_range(const std::string& text, const std::string& option);
+/// two-sided, lower-bound or upper-bound.
+methods::Side parse_side_option(const std::string& text, const std::string& option);
+/// A level in (0, 1).
+void check_level(double level, const std::string& option);
+/// Writes `text` to `path` under a temporary name and renames it into place.
+void write_file_atomically(const std::string& path, const std::string& text);
 
 /// A CLI11 check for an integer option in [lo, hi].
 CLI::Validator integer_in(long lo, long hi);

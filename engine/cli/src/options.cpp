@@ -1,6 +1,15 @@
 #include "commands.hpp"
 
+#include "covergrid/scenarios/claims.hpp"
+#include "covergrid/scenarios/loader.hpp"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cmath>
 #include <cstdlib>
+#include <filesystem>
+#include <fstream>
 
 namespace covergrid::cli {
 
@@ -38,6 +47,107 @@ methods::MethodInstance parse_method_option(const std::string& text, const std::
   } catch (const methods::ParameterError& e) {
     throw InputError(option + " " + text, e.what());
   }
+}
+
+namespace {
+
+bool parse_long(const std::string& s, long& out) {
+  char* end = nullptr;
+  out = std::strtol(s.c_str(), &end, 10);
+  return !s.empty() && end && *end == '\0';
+}
+
+bool parse_double(const std::string& s, double& out) {
+  char* end = nullptr;
+  out = std::strtod(s.c_str(), &end);
+  return !s.empty() && end && *end == '\0' && std::isfinite(out);
+}
+
+std::vector<std::string> split(const std::string& s, char sep) {
+  std::vector<std::string> parts;
+  std::size_t start = 0;
+  while (true) {
+    const auto at = s.find(sep, start);
+    parts.push_back(s.substr(start, at - start));
+    if (at == std::string::npos) break;
+    start = at + 1;
+  }
+  return parts;
+}
+
+}  // namespace
+
+std::vector<int> parse_n_set(const std::string& text, const std::string& option) {
+  const std::string where = option + " " + text;
+  auto value = [&](const std::string& s) {
+    long v = 0;
+    if (!parse_long(s, v)) throw InputError(where, fmt::format("\"{}\" is not a whole number", s));
+    if (v < 1) throw InputError(where, fmt::format("n = {} is below 1", v));
+    if (v > scenarios::max_sample_size)
+      throw InputError(
+          where, fmt::format("n = {} is above the largest supported n ({})", v, scenarios::max_sample_size));
+    return static_cast<int>(v);
+  };
+  std::vector<int> out;
+  if (text.find(':') != std::string::npos) {
+    const auto parts = split(text, ':');
+    if (parts.size() > 3) throw InputError(where, "write A:B or A:B:STEP");
+    const int a = value(parts[0]), b = value(parts[1]);
+    long step = 1;
+    if (parts.size() == 3 && (!parse_long(parts[2], step) || step < 1))
+      throw InputError(where, "the step must be a whole number of at least 1");
+    if (b < a) throw InputError(where, fmt::format("the range {}..{} is empty", a, b));
+    if (static_cast<std::size_t>((b - a) / step + 1) > scenarios::max_claim_n_count)
+      throw InputError(where, fmt::format("more than {} values", scenarios::max_claim_n_count));
+    for (long v = a; v <= b; v += step) out.push_back(static_cast<int>(v));
+  } else {
+    for (const auto& part : split(text, ',')) out.push_back(value(part));
+    std::sort(out.begin(), out.end());
+    if (std::adjacent_find(out.begin(), out.end()) != out.end())
+      throw InputError(where, "lists a value twice");
+  }
+  return out;
+}
+
+std::pair<double, double> parse_p_range(const std::string& text, const std::string& option) {
+  const std::string where = option + " " + text;
+  const auto parts = split(text, ':');
+  if (parts.size() > 2) throw InputError(where, "write LO:HI or one value");
+  double lo = 0, hi = 0;
+  if (!parse_double(parts[0], lo) || (parts.size() == 2 && !parse_double(parts[1], hi)))
+    throw InputError(where, "write LO:HI with two numbers in [0, 1], e.g. 0.01:0.99");
+  if (parts.size() == 1) hi = lo;
+  if (!(lo >= 0 && lo <= 1 && hi >= 0 && hi <= 1)) throw InputError(where, "p must lie in [0, 1]");
+  if (hi < lo) throw InputError(where, fmt::format("the range [{:g}, {:g}] is empty", lo, hi));
+  return {lo, hi};
+}
+
+methods::Side parse_side_option(const std::string& text, const std::string& option) {
+  methods::Side side{};
+  if (!methods::parse_side(text, side))
+    throw InputError(option, fmt::format("\"{}\" is not one of two-sided, lower-bound, upper-bound", text));
+  return side;
+}
+
+void check_level(double level, const std::string& option) {
+  if (!(level > 0 && level < 1)) throw InputError(option, fmt::format("{:g} is outside (0, 1)", level));
+}
+
+void write_file_atomically(const std::string& path, const std::string& text) {
+  namespace fs = std::filesystem;
+  const fs::path parent = fs::path(path).parent_path();
+  if (!parent.empty() && !fs::is_directory(parent))
+    throw InputError(path, "its folder " + parent.string() + " does not exist");
+  const std::string temp = path + ".partial";
+  {
+    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
+    if (!out) throw InputError(path, "cannot be written");
+    out << text;
+    if (!out.flush()) throw InputError(path, "cannot be written");
+  }
+  std::error_code ec;
+  fs::rename(temp, path, ec);
+  if (ec) throw InputError(path, "cannot rename the finished file into place: " + ec.message());
 }
 
 CLI::Validator integer_in(long lo, long hi) {

@@ -7,6 +7,7 @@
 #include "covergrid/engine/metrics.hpp"
 
 #include <array>
+#include <cmath>
 #include <span>
 
 namespace covergrid::engine {
@@ -35,6 +36,7 @@ struct InfimumResult {
   double where = 0;      // the p at which it is approached
   int from = 0;          // -1: approached from below `where`, +1: from above, 0: attained there
   bool refined = false;  // a non-contiguous covered set was met and searched densely
+  bool stopped = false;  // the sweep stopped early at a value below stop_below
 };
 
 /// The exact infimum of coverage over the continuous range [p_lo, p_hi].
@@ -46,7 +48,10 @@ struct InfimumResult {
 /// set is not contiguous, the segment is searched at 33 points instead
 /// (flagged as refined). Endpoints closer than 1e-12 (the precision of the
 /// limits) are merged into one event, so rounding gaps do not count as dips.
-InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi);
+/// With `stop_below` set, the sweep stops as soon as a coverage below it is
+/// seen (the result is then a value below it, not the infimum; `stopped`).
+InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi,
+                               double stop_below = -HUGE_VAL);
 
 /// Mean coverage over p uniform on [p_lo, p_hi], exactly: the integral of
 /// P(X = x) over p is a Beta(x+1, n-x+1) probability / (n+1), so
@@ -54,6 +59,26 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
 /// [a, b] = [L_x, U_x] intersected with the range. At p_lo == p_hi it is the
 /// coverage there.
 double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi);
+
+/// How much of [p_lo, p_hi] has coverage below `threshold`.
+struct BelowMeasure {
+  double measure = 0;        // Lebesgue measure of {p in [p_lo, p_hi] : coverage(p) < threshold}
+  bool approximate = false;  // a non-contiguous covered set was met and sampled at 65 points
+};
+
+/// The exact measure of the p where coverage is below `threshold`. Between
+/// consecutive interval endpoints (merged within 1e-12, as in
+/// coverage_infimum) the covered run a..b is fixed and its coverage is
+/// unimodal in p, so {coverage >= threshold} is one interval of the segment:
+/// a segment whose two ends are at or above the threshold contributes
+/// nothing; otherwise the crossings are found by TOMS 748 (and the segment's
+/// maximum by Brent's method where both ends are below). Tables whose limits
+/// are not monotone are scanned per segment and may be sampled (flagged).
+BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, double p_hi, double threshold);
+
+/// Mean over p uniform on [p_lo, p_hi] of P(U < p) (miss_low) and of
+/// P(L > p) (miss_high), exactly, as for coverage_uniform_mean.
+std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo, double p_hi);
 
 /// Coverage at p of a fixed contiguous run a..b: 1 - P(X < a) - P(X > b).
 double run_probability(int a, int b, int n, double p);

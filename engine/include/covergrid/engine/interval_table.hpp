@@ -26,4 +26,12 @@ struct IntervalTable {
 /// unsupported table (its metrics are NaN).
 IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side);
 
+/// The same table from half the work for a method that declares x <-> n - x
+/// symmetry, two-sided: limits for x <= n/2 computed, the rest mirrored
+/// (L_{n-x} = 1 - U_x), so values may differ from build_table() by rounding.
+/// Other methods and sides fall back to build_table(). Used by searches
+/// (plan) that decide, never by the cube.
+IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n, double level,
+                                   methods::Side side);
+
 }  // namespace covergrid::engine

@@ -1,0 +1,127 @@
+// covergrid audit: verdicts on nominal-coverage claims, from options or a
+// claims file; exit 0 all hold, 3 some claim refuted, 4 none refuted but
+// some inconclusive (simulated claims).
+#include "commands.hpp"
+#include "covergrid/engine/audit.hpp"
+#include "covergrid/output/verdicts.hpp"
+#include "covergrid/scenarios/claims.hpp"
+
+#include <fmt/format.h>
+
+#include <memory>
+
+namespace covergrid::cli {
+
+namespace {
+
+struct AuditArgs {
+  std::string claims_file;
+  std::string method, n, p, side = "two-sided", about = "minimum", format = "text", output;
+  double level = 0, tolerance = 0, confidence = 0.95;
+  std::int64_t replicates = 0, p_points = 101, seed = 0;
+  int threads = 0;
+};
+
+engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
+  if (a.method.empty()) throw InputError("--method", "is required without --claims (e.g. --method wilson)");
+  if (app.count("--level") == 0) throw InputError("--level", "is required without --claims (e.g. --level 0.95)");
+  if (a.n.empty()) throw InputError("--n", "is required without --claims (e.g. --n 30:100)");
+  if (a.p.empty()) throw InputError("--p", "is required without --claims (e.g. --p 0.01:0.99)");
+  engine::Claim c;
+  c.method = parse_method_option(a.method);
+  check_level(a.level, "--level");
+  c.level = a.level;
+  c.side = parse_side_option(a.side, "--side");
+  if (!c.method.method->supports(c.side))
+    throw InputError("--side", fmt::format("{} does not define the side {}", c.method.label, a.side));
+  c.n = parse_n_set(a.n, "--n");
+  std::tie(c.p_lo, c.p_hi) = parse_p_range(a.p, "--p");
+  if (!(a.tolerance >= 0)) throw InputError("--tolerance", fmt::format("{:g} must not be negative", a.tolerance));
+  if (!(a.tolerance < a.level))
+    throw InputError("--tolerance", fmt::format("{:g} is not below the level: the claim would say nothing", a.tolerance));
+  c.tolerance = a.tolerance;
+  if (a.about == "minimum")
+    c.kind = engine::ClaimKind::minimum;
+  else if (a.about == "mean")
+    c.kind = engine::ClaimKind::mean;
+  else
+    throw InputError("--about", fmt::format("\"{}\" is not one of minimum, mean", a.about));
+  if (a.replicates < 0) throw InputError("--replicates", "must not be negative");
+  c.replicates = static_cast<std::uint64_t>(a.replicates);
+  if (a.p_points < 2 || static_cast<std::size_t>(a.p_points) > scenarios::max_claim_p_points)
+    throw InputError("--p-points", fmt::format("{} is outside 2..{}", a.p_points, scenarios::max_claim_p_points));
+  c.p_points = static_cast<std::size_t>(a.p_points);
+  if (!(a.confidence > 0 && a.confidence < 1))
+    throw InputError("--confidence", fmt::format("{:g} is outside (0, 1)", a.confidence));
+  c.confidence = a.confidence;
+  if (a.seed < 0) throw InputError("--seed", "must not be negative");
+  c.seed = static_cast<std::uint64_t>(a.seed);
+  c.name = fmt::format("{} {:g} % {} {} coverage", c.method.label, 100 * c.level, methods::side_name(c.side),
+                       a.about);
+  return c;
+}
+
+int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out) {
+  output::VerdictFormat format{};
+  if (a.format == "text")
+    format = output::VerdictFormat::text;
+  else if (a.format == "csv")
+    format = output::VerdictFormat::csv;
+  else if (a.format == "json")
+    format = output::VerdictFormat::json;
+  else
+    throw InputError("--format", fmt::format("\"{}\" is not one of text, csv, json", a.format));
+  std::vector<engine::Claim> claims;
+  if (!a.claims_file.empty()) {
+    for (const char* opt : {"--method", "--level", "--n", "--p", "--side", "--tolerance", "--about", "--replicates",
+                            "--p-points", "--confidence", "--seed"})
+      if (app.count(opt) > 0) throw InputError(opt, "goes with a claim from options, not with --claims");
+    claims = scenarios::load_claims_file(a.claims_file);
+  } else {
+    claims.push_back(claim_from_options(a, app));
+  }
+  std::vector<engine::Verdict> verdicts;
+  for (const auto& c : claims) verdicts.push_back(engine::audit_claim(c, a.threads));
+  const std::string table = output::verdict_table(claims, verdicts, format);
+  if (a.output.empty())
+    out << table;
+  else
+    write_file_atomically(a.output, table);
+  bool refuted = false, inconclusive = false;
+  for (const auto& v : verdicts) {
+    refuted |= v.outcome == engine::Outcome::refuted;
+    inconclusive |= v.outcome == engine::Outcome::inconclusive;
+  }
+  return refuted ? exit_refuted : inconclusive ? exit_inconclusive : exit_ok;
+}
+
+}  // namespace
+
+Command add_audit_command(CLI::App& app) {
+  auto a = std::make_shared<AuditArgs>();
+  auto* audit = app.add_subcommand(
+      "audit",
+      "Verdict on a coverage claim: holds (exit 0), refuted (3, with the worst case) or inconclusive (4)");
+  audit->add_option("--claims,--scenario", a->claims_file, "claims file (TOML) holding one or more [[claim]]");
+  audit->add_option("--method", a->method, "method id, optionally id:key=value,...");
+  audit->add_option("--level", a->level, "nominal confidence level in (0, 1)");
+  audit->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
+  audit->add_option("--n", a->n, "sample sizes: A:B, A:B:STEP or a list A,B,C");
+  audit->add_option("--p", a->p, "true-proportion range LO:HI (or one value)");
+  audit->add_option("--tolerance", a->tolerance, "the claim is coverage >= level - tolerance (default 0)");
+  audit->add_option("--about", a->about, "minimum (default: the infimum over p) or mean (over p uniform on the range)");
+  audit->add_option("--replicates", a->replicates,
+                    "judge by Monte Carlo with this many replicates per cell instead of exact sums");
+  audit->add_option("--p-points", a->p_points, "Monte Carlo: p points across the range (default 101)");
+  audit->add_option("--confidence", a->confidence, "Monte Carlo: simultaneous confidence of the bounds (default 0.95)");
+  audit->add_option("--seed", a->seed, "Monte Carlo: stream key (default 0)");
+  audit->add_option("--format", a->format, "text (default), csv or json");
+  audit->add_option("-o,--output", a->output, "write the verdict table to this file instead of stdout");
+  audit->add_option("--threads", a->threads, "worker threads (default: all cores)")->check(integer_in(1, 4096));
+  audit->footer(
+      "Exact claims (the default) are decided with the exact continuous infimum (or exact mean) of the binomial\n"
+      "coverage; simulated claims with Clopper-Pearson bounds made simultaneous by Bonferroni over every cell.");
+  return {audit, [a, audit](std::ostream& out, std::ostream&) { return cmd_audit(*a, *audit, out); }};
+}
+
+}  // namespace covergrid::cli

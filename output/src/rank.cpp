@@ -1,0 +1,216 @@
+#include "covergrid/output/rank.hpp"
+
+#include "covergrid/engine/error.hpp"
+#include "covergrid/engine/interval_table.hpp"
+#include "covergrid/engine/monte_carlo.hpp"
+#include "covergrid/methods/registry.hpp"
+#include "covergrid/output/tables.hpp"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdlib>
+#include <limits>
+
+namespace covergrid::output {
+
+const char* criterion_name(RankCriterion c) {
+  switch (c) {
+    case RankCriterion::shortest:
+      return "shortest";
+    case RankCriterion::closest:
+      return "closest";
+    case RankCriterion::safest:
+      return "safest";
+  }
+  return "?";
+}
+
+std::string criterion_text(RankCriterion c, double tolerance, bool simulated) {
+  const char* worst = simulated ? "smallest simulated coverage on the grid" : "exact infimum of coverage";
+  switch (c) {
+    case RankCriterion::shortest:
+      return fmt::format(
+          "shortest mean width among the methods whose {} stays at or above nominal - {:g}; the others follow, "
+          "by worst coverage",
+          worst, tolerance);
+    case RankCriterion::closest:
+      return "smallest mean RMS deviation of coverage from nominal over the grid's p";
+    case RankCriterion::safest:
+      return fmt::format("largest worst-case coverage ({})", worst);
+  }
+  return "";
+}
+
+namespace {
+
+/// A method instance rebuilt from the cube's /methods/<label> attributes.
+methods::MethodInstance instance_from_cube(const CubeReader& cube, const std::string& label) {
+  const auto& info = cube.method_info.at(label);
+  const methods::MethodEntry* entry = methods::find_method(info.at("id"));
+  if (!entry) throw InputError(cube.path(), fmt::format("method {} is not known to this version", info.at("id")));
+  methods::ParamValues given;
+  for (const auto& spec : entry->info.params) {
+    const auto it = info.find(fmt::format("param.{}", spec.name));
+    if (it == info.end()) continue;
+    if (spec.kind == methods::ParamSpec::Kind::boolean)
+      given[spec.name] = it->second == "true";
+    else if (spec.kind == methods::ParamSpec::Kind::number)
+      given[spec.name] = std::strtod(it->second.c_str(), nullptr);
+    else
+      given[spec.name] = it->second;
+  }
+  return methods::make_instance(entry->info.id, given, label);
+}
+
+}  // namespace
+
+std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& options) {
+  if (!cube.complete()) throw InputError(cube.path(), "is not complete: finish its run first");
+  const bool ex = cube.has_exact();
+  const auto worst = cube.summary(ex ? "inf_coverage" : "mc_min_coverage");
+  const auto mean = cube.summary(ex ? "mean_coverage_continuous" : "mc_mean_coverage");
+  const auto rms = cube.summary(ex ? "rms_deviation" : "mc_rms_deviation");
+  const auto width = cube.summary(ex ? "mean_width" : "mc_mean_width");
+  std::vector<std::pair<std::int64_t, std::int64_t>> bands = options.bands;
+  if (bands.empty()) {
+    const std::size_t k = std::min<std::size_t>(3, cube.n.size());
+    for (std::size_t b = 0; b < k; ++b) {
+      const std::size_t first = b * cube.n.size() / k, last = (b + 1) * cube.n.size() / k - 1;
+      bands.emplace_back(cube.n[first], cube.n[last]);
+    }
+  }
+  std::uint64_t seed = 0;
+  if (!ex) seed = std::strtoull(cube.attr("seed").c_str(), nullptr, 10);
+  std::vector<RankGroup> out;
+  for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
+    for (std::size_t s = 0; s < cube.sides.size(); ++s)
+      for (std::size_t l = 0; l < cube.levels.size(); ++l)
+        for (const auto& [lo, hi] : bands) {
+          RankGroup g{mo, s, l, lo, hi, 0, !ex, {}};
+          std::vector<std::size_t> ns;
+          for (std::size_t i = 0; i < cube.n.size(); ++i)
+            if (cube.n[i] >= lo && cube.n[i] <= hi) ns.push_back(i);
+          if (ns.empty())
+            throw InputError("--bands", fmt::format("the band {}..{} holds none of the cube's n", lo, hi));
+          g.n_count = ns.size();
+          const double threshold = cube.levels[l] - options.tolerance;
+          for (std::size_t m = 0; m < cube.methods.size(); ++m) {
+            RankEntry e;
+            e.method = m;
+            e.worst_coverage = std::numeric_limits<double>::infinity();
+            bool defined = true;
+            for (std::size_t i : ns) {
+              const std::size_t at = cube.summary_index(mo, s, l, m, i);
+              if (std::isnan(worst[at])) {
+                defined = false;
+                break;
+              }
+              if (worst[at] < e.worst_coverage) {
+                e.worst_coverage = worst[at];
+                e.worst_n = cube.n[i];
+              }
+              e.mean_coverage += mean[at];
+              e.rms_deviation += rms[at];
+              e.mean_width += width[at];
+            }
+            if (!defined) continue;  // the method does not define this side
+            const double k = static_cast<double>(ns.size());
+            e.mean_coverage /= k;
+            e.rms_deviation /= k;
+            e.mean_width /= k;
+            e.eligible = e.worst_coverage >= threshold;
+            g.entries.push_back(e);
+          }
+          auto order = [&](const RankEntry& a, const RankEntry& b) {
+            switch (options.criterion) {
+              case RankCriterion::shortest:
+                if (a.eligible != b.eligible) return a.eligible;
+                return a.eligible ? a.mean_width < b.mean_width : a.worst_coverage > b.worst_coverage;
+              case RankCriterion::closest:
+                return a.rms_deviation < b.rms_deviation;
+              case RankCriterion::safest:
+                return a.worst_coverage > b.worst_coverage;
+            }
+            return false;
+          };
+          std::stable_sort(g.entries.begin(), g.entries.end(), order);
+          for (std::size_t i = 0; i < g.entries.size(); ++i) g.entries[i].rank = static_cast<int>(i) + 1;
+          // Paired differences against the first method, on the run's own draws.
+          if (!ex && options.paired && g.entries.size() > 1) {
+            methods::Side side{};
+            if (!methods::parse_side(cube.sides[s], side))
+              throw InputError(cube.path(), fmt::format("unknown side {}", cube.sides[s]));
+            const auto leader = instance_from_cube(cube, cube.methods[g.entries[0].method]);
+            for (std::size_t r = 1; r < g.entries.size(); ++r) {
+              const auto other = instance_from_cube(cube, cube.methods[g.entries[r].method]);
+              double sum = 0, var = 0, cells = 0;
+              for (std::size_t i : ns) {
+                const int n = static_cast<int>(cube.n[i]);
+                const auto ta = engine::build_table(*other.method, n, cube.levels[l], side);
+                const auto tb = engine::build_table(*leader.method, n, cube.levels[l], side);
+                const auto reps = cube.mc_replicates(mo, i);
+                for (std::size_t pi = 0; pi < cube.p.size(); ++pi) {
+                  const auto c = engine::paired_difference(seed, mo, n, pi, cube.p[pi],
+                                                           static_cast<std::uint64_t>(reps[pi]), ta, tb);
+                  sum += c.difference;
+                  var += c.difference_se * c.difference_se;
+                  ++cells;
+                }
+              }
+              g.entries[r].has_pair = true;
+              g.entries[r].pair_difference = sum / cells;
+              g.entries[r].pair_se = std::sqrt(var) / cells;
+            }
+          }
+          out.push_back(std::move(g));
+        }
+  return out;
+}
+
+std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& groups, const RankOptions& options) {
+  std::string s;
+  std::size_t width = 6;
+  for (const auto& m : cube.methods) width = std::max(width, m.size());
+  const bool simulated = !groups.empty() && groups.front().simulated;
+  s += fmt::format("Criterion: {}.\n", criterion_text(options.criterion, options.tolerance, simulated));
+  for (const auto& g : groups) {
+    s += fmt::format("\n{} model, {}, nominal {:g} %, n = {}..{} ({} values){}\n", cube.models[g.model],
+                     cube.sides[g.side], 100 * cube.levels[g.level], g.n_lo, g.n_hi, g.n_count,
+                     g.simulated ? ", simulated" : "");
+    s += fmt::format("  {:>4}  {:<{}}  {:>10}  {:>7}  {:>10}  {:>10}  {:>10}  {}\n", "rank", "method", width,
+                     "worst cov", "at n", "mean cov", "rms dev", "mean width",
+                     g.simulated ? "coverage vs first (paired)" : "");
+    for (const auto& e : g.entries) {
+      std::string pair;
+      if (e.has_pair)
+        pair = fmt::format("{:+.5f} +/- {:.5f}", e.pair_difference, e.pair_se);
+      s += fmt::format("  {:>4}  {:<{}}  {:>10.6f}  {:>7}  {:>10.6f}  {:>10.6f}  {:>10.6f}  {}{}\n", e.rank,
+                       cube.methods[e.method], width, e.worst_coverage, e.worst_n, e.mean_coverage, e.rms_deviation,
+                       e.mean_width, e.eligible ? "" : "[below nominal - tolerance] ", pair);
+    }
+  }
+  if (simulated)
+    s += "\nPaired differences re-draw the run's own samples (common random numbers); +/- is one standard error\n"
+         "of the band's mean difference.\n";
+  s += fmt::format("\n{}\n", coverage_caution);
+  return s;
+}
+
+std::string rank_csv(const CubeReader& cube, const std::vector<RankGroup>& groups) {
+  std::string s =
+      "model,side,level,n_lo,n_hi,source,rank,method,eligible,worst_coverage,worst_n,mean_coverage,rms_deviation,"
+      "mean_width,paired_difference,paired_se\n";
+  for (const auto& g : groups)
+    for (const auto& e : g.entries)
+      s += fmt::format("{},{},{},{},{},{},{},\"{}\",{},{:.17g},{},{:.17g},{:.17g},{:.17g},{},{}\n",
+                       cube.models[g.model], cube.sides[g.side], cube.levels[g.level], g.n_lo, g.n_hi,
+                       g.simulated ? "monte-carlo" : "exact", e.rank, cube.methods[e.method], e.eligible ? 1 : 0,
+                       e.worst_coverage, e.worst_n, e.mean_coverage, e.rms_deviation, e.mean_width,
+                       e.has_pair ? fmt::format("{:.17g}", e.pair_difference) : "",
+                       e.has_pair ? fmt::format("{:.17g}", e.pair_se) : "");
+  return s;
+}
+
+}  // namespace covergrid::output
