@@ -39,8 +39,9 @@ std::string percent_text(double confidence) {
 }
 
 std::string fmt_correction(std::size_t cells, double confidence) {
-  return "Clopper-Pearson bounds per cell at level 1 - alpha/" + std::to_string(cells) + " (Bonferroni over " +
-         std::to_string(cells) + " cells; " + percent_text(confidence) + " % simultaneous)";
+  return "Clopper-Pearson bounds per cell at level 1 - alpha/" + std::to_string(cells) +
+         " (Bonferroni over " + std::to_string(cells) + " cells; " + percent_text(confidence) +
+         " % simultaneous)";
 }
 
 std::string fmt_mean_correction(std::size_t ns, double confidence) {
@@ -154,7 +155,9 @@ Verdict audit_simulated(const Claim& c, int threads) {
   const std::size_t points = c.p_hi > c.p_lo ? std::max<std::size_t>(c.p_points, 2) : 1;
   std::vector<double> ps(points);
   for (std::size_t j = 0; j < points; ++j)
-    ps[j] = j + 1 == points ? c.p_hi : c.p_lo + (c.p_hi - c.p_lo) * static_cast<double>(j) / static_cast<double>(points - 1);
+    ps[j] = j + 1 == points
+                ? c.p_hi
+                : c.p_lo + (c.p_hi - c.p_lo) * static_cast<double>(j) / static_cast<double>(points - 1);
   std::vector<SimCell> cells(c.n.size() * points);
   for_each_index(c.n.size(), threads, [&](std::size_t i) {
     const int n = c.n[i];
@@ -171,14 +174,15 @@ Verdict audit_simulated(const Claim& c, int threads) {
       cell.coverage = m[index(Metric::coverage)];
       cell.miss_low = m[index(Metric::miss_low)];
       cell.miss_high = m[index(Metric::miss_high)];
-      cell.covered = static_cast<std::uint64_t>(std::llround(cell.coverage * static_cast<double>(c.replicates)));
+      cell.covered =
+          static_cast<std::uint64_t>(std::llround(cell.coverage * static_cast<double>(c.replicates)));
     }
   });
   const double alpha = 1.0 - c.confidence;
   const double r = static_cast<double>(c.replicates);
   auto need = [&](double estimate, double se_at_one, double z) -> std::uint64_t {
     // Replicates at which z * se would equal the distance to the threshold
-    // (normal approximation, an estimate): se scales as 1/sqrt(R).
+    // (an estimate): se scales as 1/sqrt(R); se_at_one is se * sqrt(R).
     const double gap = std::fabs(estimate - t);
     if (gap <= 0 || se_at_one <= 0) return 0;
     return static_cast<std::uint64_t>(std::ceil(std::pow(z * se_at_one / gap, 2)));
@@ -187,7 +191,6 @@ Verdict audit_simulated(const Claim& c, int threads) {
   if (c.kind == ClaimKind::minimum) {
     v.cells = cells.size();
     const double cell_alpha = alpha / static_cast<double>(cells.size());
-    const double z = methods::z_upper(cell_alpha / 2);
     v.correction = fmt_correction(cells.size(), c.confidence);
     bool all_above = true, any_below = false;
     std::size_t deciding = 0;
@@ -216,8 +219,11 @@ Verdict audit_simulated(const Claim& c, int threads) {
         key = bounds[k][0];  // the closest call among cells that hold
       else if (straddles) {
         key = cells[k].coverage;
-        const double p = cells[k].coverage;
-        const std::uint64_t rk = need(p, std::sqrt(p * (1 - p)), z);
+        // The bound's half-width on the threshold's side shrinks as 1/sqrt(R):
+        // the replicates at which it would just clear the threshold.
+        const double est = cells[k].coverage;
+        const double half = est > t ? est - bounds[k][0] : bounds[k][1] - est;
+        const std::uint64_t rk = need(est, half * std::sqrt(r), 1.0);
         if (rk == 0) undecidable = true;
         to_decide = std::max(to_decide, rk);
       }
@@ -302,9 +308,11 @@ Verdict audit_claim(const Claim& c, int threads) {
   const std::string where = c.name.empty() ? "claim" : "claim " + c.name;
   if (!c.method.method) throw InputError(where, "names no method");
   if (!c.method.method->supports(c.side))
-    throw InputError(where, c.method.label + " does not define the side " + std::string(methods::side_name(c.side)));
+    throw InputError(where,
+                     c.method.label + " does not define the side " + std::string(methods::side_name(c.side)));
   if (c.n.empty()) throw InputError(where, "has no n");
-  if (!(c.p_lo >= 0 && c.p_hi <= 1 && c.p_lo <= c.p_hi)) throw InputError(where, "its p range is not inside [0, 1]");
+  if (!(c.p_lo >= 0 && c.p_hi <= 1 && c.p_lo <= c.p_hi))
+    throw InputError(where, "its p range is not inside [0, 1]");
   if (!(c.tolerance >= 0)) throw InputError(where, "tolerance must not be negative");
   return c.replicates > 0 ? audit_simulated(c, threads) : audit_exact(c, threads);
 }

@@ -78,8 +78,8 @@ std::pair<double, double> max_expected_width(const IntervalTable& t, double p_lo
   }
   const double step = (p_hi - p_lo) / (points - 1);
   const double a = std::max(p_lo, p_lo + (best - 1) * step), b = std::min(p_hi, p_lo + (best + 1) * step);
-  const auto r =
-      boost::math::tools::brent_find_minima([&](double p) { return -expected_width(t, window, p); }, a, b, 40);
+  const auto r = boost::math::tools::brent_find_minima(
+      [&](double p) { return -expected_width(t, window, p); }, a, b, 40);
   if (-r.second > best_value) return {-r.second, r.first};
   return {best_value, p_lo + best * step};
 }
@@ -143,7 +143,8 @@ PlanResult plan_sample_size(const PlanRequest& q, int threads) {
   auto evaluate = [&](int lo, int hi, std::vector<char>& meets) {
     meets.assign(static_cast<std::size_t>(hi - lo + 1), 0);
     arena.execute([&] {
-      tbb::parallel_for(lo, hi + 1, [&](int n) { meets[static_cast<std::size_t>(n - lo)] = plan_meets(q, n); });
+      tbb::parallel_for(lo, hi + 1,
+                        [&](int n) { meets[static_cast<std::size_t>(n - lo)] = plan_meets(q, n); });
     });
     out.evaluated += meets.size();
   };

@@ -32,7 +32,8 @@ std::string criterion_text(RankCriterion c, double tolerance, bool simulated) {
   switch (c) {
     case RankCriterion::shortest:
       return fmt::format(
-          "shortest mean width among the methods whose {} stays at or above nominal - {:g}; the others follow, "
+          "shortest mean width among the methods whose {} stays at or above nominal - {:g}; the others "
+          "follow, "
           "by worst coverage",
           worst, tolerance);
     case RankCriterion::closest:
@@ -49,7 +50,8 @@ namespace {
 methods::MethodInstance instance_from_cube(const CubeReader& cube, const std::string& label) {
   const auto& info = cube.method_info.at(label);
   const methods::MethodEntry* entry = methods::find_method(info.at("id"));
-  if (!entry) throw InputError(cube.path(), fmt::format("method {} is not known to this version", info.at("id")));
+  if (!entry)
+    throw InputError(cube.path(), fmt::format("method {} is not known to this version", info.at("id")));
   methods::ParamValues given;
   for (const auto& spec : entry->info.params) {
     const auto it = info.find(fmt::format("param.{}", spec.name));
@@ -169,7 +171,8 @@ std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& o
   return out;
 }
 
-std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& groups, const RankOptions& options) {
+std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& groups,
+                      const RankOptions& options) {
   std::string s;
   std::size_t width = 6;
   for (const auto& m : cube.methods) width = std::max(width, m.size());
@@ -184,15 +187,15 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
                      g.simulated ? "coverage vs first (paired)" : "");
     for (const auto& e : g.entries) {
       std::string pair;
-      if (e.has_pair)
-        pair = fmt::format("{:+.5f} +/- {:.5f}", e.pair_difference, e.pair_se);
+      if (e.has_pair) pair = fmt::format("{:+.5f} +/- {:.5f}", e.pair_difference, e.pair_se);
       s += fmt::format("  {:>4}  {:<{}}  {:>10.6f}  {:>7}  {:>10.6f}  {:>10.6f}  {:>10.6f}  {}{}\n", e.rank,
-                       cube.methods[e.method], width, e.worst_coverage, e.worst_n, e.mean_coverage, e.rms_deviation,
-                       e.mean_width, e.eligible ? "" : "[below nominal - tolerance] ", pair);
+                       cube.methods[e.method], width, e.worst_coverage, e.worst_n, e.mean_coverage,
+                       e.rms_deviation, e.mean_width, e.eligible ? "" : "[below nominal - tolerance] ", pair);
     }
   }
   if (simulated)
-    s += "\nPaired differences re-draw the run's own samples (common random numbers); +/- is one standard error\n"
+    s += "\nPaired differences re-draw the run's own samples (common random numbers); +/- is one standard "
+         "error\n"
          "of the band's mean difference.\n";
   s += fmt::format("\n{}\n", coverage_caution);
   return s;
@@ -200,15 +203,16 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
 
 std::string rank_csv(const CubeReader& cube, const std::vector<RankGroup>& groups) {
   std::string s =
-      "model,side,level,n_lo,n_hi,source,rank,method,eligible,worst_coverage,worst_n,mean_coverage,rms_deviation,"
+      "model,side,level,n_lo,n_hi,source,rank,method,eligible,worst_coverage,worst_n,mean_coverage,rms_"
+      "deviation,"
       "mean_width,paired_difference,paired_se\n";
   for (const auto& g : groups)
     for (const auto& e : g.entries)
       s += fmt::format("{},{},{},{},{},{},{},\"{}\",{},{:.17g},{},{:.17g},{:.17g},{:.17g},{},{}\n",
                        cube.models[g.model], cube.sides[g.side], cube.levels[g.level], g.n_lo, g.n_hi,
-                       g.simulated ? "monte-carlo" : "exact", e.rank, cube.methods[e.method], e.eligible ? 1 : 0,
-                       e.worst_coverage, e.worst_n, e.mean_coverage, e.rms_deviation, e.mean_width,
-                       e.has_pair ? fmt::format("{:.17g}", e.pair_difference) : "",
+                       g.simulated ? "monte-carlo" : "exact", e.rank, cube.methods[e.method],
+                       e.eligible ? 1 : 0, e.worst_coverage, e.worst_n, e.mean_coverage, e.rms_deviation,
+                       e.mean_width, e.has_pair ? fmt::format("{:.17g}", e.pair_difference) : "",
                        e.has_pair ? fmt::format("{:.17g}", e.pair_se) : "");
   return s;
 }

@@ -21,8 +21,8 @@ const char* about_name(ClaimKind k) { return k == ClaimKind::minimum ? "minimum"
 std::string tail_text(const Verdict& v) {
   const double lo = v.worst_miss_low, hi = v.worst_miss_high;
   if (lo + hi <= 0) return "none";
-  if (lo >= 2 * hi) return "low";    // intervals wholly below p
-  if (hi >= 2 * lo) return "high";   // intervals wholly above p
+  if (lo >= 2 * hi) return "low";   // intervals wholly below p
+  if (hi >= 2 * lo) return "high";  // intervals wholly above p
   return "both";
 }
 
@@ -77,19 +77,21 @@ std::string text_block(const Claim& c, const Verdict& v) {
     s += fmt::format("  source    Monte Carlo, {} replicates per cell at {} p points ({} cells), seed {}\n",
                      v.replicates, v.cells / std::max<std::size_t>(1, c.n.size()), v.cells, c.seed);
   else
-    s += fmt::format("  source    exact ({})\n", c.kind == ClaimKind::minimum
-                                                      ? "continuous infimum over the p range"
-                                                      : "mean over p uniform on the range, by incomplete beta integrals");
+    s += fmt::format("  source    exact ({})\n",
+                     c.kind == ClaimKind::minimum
+                         ? "continuous infimum over the p range"
+                         : "mean over p uniform on the range, by incomplete beta integrals");
   if (c.kind == ClaimKind::minimum) {
     s += fmt::format("  worst     n = {}, p = {:.10g}{}: coverage {:.8f}\n", v.worst_n, v.worst_p,
                      v.simulated ? "" : " (" + approach_text(v.worst_from) + ")", v.worst_coverage);
   } else {
     s += fmt::format("  worst     n = {}: mean coverage {:.8f}\n", v.worst_n, v.worst_coverage);
   }
-  s += fmt::format("  misses    {:.6f} below p (interval too low), {:.6f} above p (interval too high): {} tail\n",
-                   v.worst_miss_low, v.worst_miss_high, tail_text(v));
-  s += fmt::format("  region    {} of {} n below {:.6g}; {:.4f} % of the (n, p) region below it{}\n", v.n_below,
-                   v.n_count, v.threshold, 100 * v.share_below,
+  s += fmt::format(
+      "  misses    {:.6f} below p (interval too low), {:.6f} above p (interval too high): {} tail\n",
+      v.worst_miss_low, v.worst_miss_high, tail_text(v));
+  s += fmt::format("  region    {} of {} n below {:.6g}; {:.4f} % of the (n, p) region below it{}\n",
+                   v.n_below, v.n_count, v.threshold, 100 * v.share_below,
                    v.simulated ? (c.kind == ClaimKind::minimum ? " (cells whose upper bound is below)"
                                                                : " (cells whose estimate is below)")
                    : v.share_approximate ? " (partly sampled)"
@@ -114,7 +116,8 @@ std::string text_block(const Claim& c, const Verdict& v) {
 std::string n_set_text(const std::vector<int>& n) {
   if (n.empty()) return "";
   if (n.size() == 1) return std::to_string(n[0]);
-  if (n.back() - n.front() + 1 == static_cast<int>(n.size())) return fmt::format("{}..{}", n.front(), n.back());
+  if (n.back() - n.front() + 1 == static_cast<int>(n.size()))
+    return fmt::format("{}..{}", n.front(), n.back());
   if (n.size() <= 6) {
     std::string s;
     for (int v : n) s += (s.empty() ? "" : ", ") + std::to_string(v);
@@ -131,8 +134,8 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
     if (claims.size() > 1) {
       std::size_t width = 5;
       for (const auto& c : claims) width = std::max(width, c.name.size());
-      out += fmt::format("{:<{}}  {:<12}  {:>8}  {:>12}  {:>6}\n", "claim", width, "verdict", "n worst", "coverage",
-                         "tail");
+      out += fmt::format("{:<{}}  {:<12}  {:>8}  {:>12}  {:>6}\n", "claim", width, "verdict", "n worst",
+                         "coverage", "tail");
       for (std::size_t i = 0; i < claims.size(); ++i)
         out += fmt::format("{:<{}}  {:<12}  {:>8}  {:>12.8f}  {:>6}\n", claims[i].name, width,
                            engine::outcome_name(verdicts[i].outcome), verdicts[i].worst_n,
@@ -152,10 +155,11 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
       const Verdict& v = verdicts[i];
       auto num = [](double x) { return std::isfinite(x) ? fmt::format("{}", x) : std::string(); };
       out += fmt::format(
-          "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n", csv_field(c.name),
-          engine::outcome_name(v.outcome), csv_field(c.method.label), num(c.level), methods::side_name(c.side),
-          about_name(c.kind), c.n.front(), c.n.back(), c.n.size(), num(c.p_lo), num(c.p_hi), num(c.tolerance),
-          num(v.threshold), v.simulated ? "monte-carlo" : "exact", v.worst_n, num(v.worst_p),
+          "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+          csv_field(c.name), engine::outcome_name(v.outcome), csv_field(c.method.label), num(c.level),
+          methods::side_name(c.side), about_name(c.kind), c.n.front(), c.n.back(), c.n.size(), num(c.p_lo),
+          num(c.p_hi), num(c.tolerance), num(v.threshold), v.simulated ? "monte-carlo" : "exact", v.worst_n,
+          num(v.worst_p),
           v.simulated || c.kind == ClaimKind::mean ? std::string() : std::to_string(v.worst_from),
           num(v.worst_coverage), num(v.worst_miss_low), num(v.worst_miss_high), tail_text(v), v.n_below,
           num(v.share_below), v.replicates, v.cells, v.simulated ? num(v.lower_bound) : "",
@@ -175,17 +179,19 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
     out += fmt::format(
         "      \"method\": {},\n      \"level\": {},\n      \"side\": \"{}\",\n      \"about\": \"{}\",\n",
         json_string(c.method.label), json_number(c.level), methods::side_name(c.side), about_name(c.kind));
-    out += fmt::format("      \"n\": [{}],\n      \"p\": [{}, {}],\n      \"tolerance\": {},\n      \"threshold\": {},\n",
-                       ns, json_number(c.p_lo), json_number(c.p_hi), json_number(c.tolerance),
-                       json_number(v.threshold));
+    out += fmt::format(
+        "      \"n\": [{}],\n      \"p\": [{}, {}],\n      \"tolerance\": {},\n      \"threshold\": {},\n",
+        ns, json_number(c.p_lo), json_number(c.p_hi), json_number(c.tolerance), json_number(v.threshold));
     out += fmt::format("      \"source\": \"{}\",\n", v.simulated ? "monte-carlo" : "exact");
     out += fmt::format(
         "      \"worst\": {{\"n\": {}, \"p\": {}, \"from\": {}, \"coverage\": {}, \"miss_low\": {}, "
         "\"miss_high\": {}, \"tail\": \"{}\"}},\n",
-        v.worst_n, json_number(v.worst_p), v.simulated || c.kind == ClaimKind::mean ? "null" : std::to_string(v.worst_from),
-        json_number(v.worst_coverage), json_number(v.worst_miss_low), json_number(v.worst_miss_high), tail_text(v));
-    out += fmt::format("      \"n_below\": {},\n      \"n_count\": {},\n      \"share_below\": {},\n", v.n_below,
-                       v.n_count, json_number(v.share_below));
+        v.worst_n, json_number(v.worst_p),
+        v.simulated || c.kind == ClaimKind::mean ? "null" : std::to_string(v.worst_from),
+        json_number(v.worst_coverage), json_number(v.worst_miss_low), json_number(v.worst_miss_high),
+        tail_text(v));
+    out += fmt::format("      \"n_below\": {},\n      \"n_count\": {},\n      \"share_below\": {},\n",
+                       v.n_below, v.n_count, json_number(v.share_below));
     if (v.simulated)
       out += fmt::format(
           "      \"monte_carlo\": {{\"replicates\": {}, \"cells\": {}, \"seed\": {}, \"lower_bound\": {}, "

@@ -24,7 +24,8 @@ std::vector<int> claim_n(const Context& ctx, const toml::node& node, const std::
   if (node.is_array()) {
     const auto& arr = *node.as_array();
     if (arr.empty()) ctx.fail(&node, what + " is an empty list");
-    if (arr.size() > max_claim_n_count) ctx.fail(&node, fmt::format("{} lists more than {} values", what, max_claim_n_count));
+    if (arr.size() > max_claim_n_count)
+      ctx.fail(&node, fmt::format("{} lists more than {} values", what, max_claim_n_count));
     for (const auto& item : arr) out.push_back(one(item, what + " entry"));
     std::sort(out.begin(), out.end());
     if (std::adjacent_find(out.begin(), out.end()) != out.end())
@@ -37,7 +38,8 @@ std::vector<int> claim_n(const Context& ctx, const toml::node& node, const std::
     if (!from) ctx.fail(&node, what + " needs 'from'");
     if (!to) ctx.fail(&node, what + " needs 'to'");
     const int a = one(*from, what + ".from"), b = one(*to, what + ".to");
-    if (b < a) ctx.fail(to, fmt::format("{}.to = {} is below {}.from = {}: the range is empty", what, b, what, a));
+    if (b < a)
+      ctx.fail(to, fmt::format("{}.to = {} is below {}.from = {}: the range is empty", what, b, what, a));
     std::int64_t step = 1;
     if (const toml::node* s = t.get("step")) {
       step = integer_of(ctx, *s, what + ".step");
@@ -55,7 +57,8 @@ std::vector<int> claim_n(const Context& ctx, const toml::node& node, const std::
 std::pair<double, double> claim_p(const Context& ctx, const toml::node& node, const std::string& what) {
   auto one = [&](const toml::node& item, const std::string& name) {
     const double v = number_of(ctx, item, name);
-    if (!(v >= 0 && v <= 1)) ctx.fail(&item, fmt::format("{} = {} is outside [0, 1]", name, value_text(item)));
+    if (!(v >= 0 && v <= 1))
+      ctx.fail(&item, fmt::format("{} = {} is outside [0, 1]", name, value_text(item)));
     return v;
   };
   if (node.is_table()) {
@@ -67,11 +70,12 @@ std::pair<double, double> claim_p(const Context& ctx, const toml::node& node, co
     if (!to) ctx.fail(&node, what + " needs 'to'");
     const double a = one(*from, what + ".from"), b = one(*to, what + ".to");
     if (b < a)
-      ctx.fail(to, fmt::format("{}.to = {} is below {}.from = {}: the range is empty", what, value_text(*to), what,
-                               value_text(*from)));
+      ctx.fail(to, fmt::format("{}.to = {} is below {}.from = {}: the range is empty", what, value_text(*to),
+                               what, value_text(*from)));
     return {a, b};
   }
-  if (node.is_array()) ctx.fail(&node, what + " is a range { from = ..., to = ... } or one number, not a list");
+  if (node.is_array())
+    ctx.fail(&node, what + " is a range { from = ..., to = ... } or one number, not a list");
   const double v = one(node, what);
   return {v, v};
 }
@@ -128,8 +132,8 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
   for (const auto& item : *list->as_array()) {
     const auto& t = *item.as_table();
     reject_unknown(ctx, t, "[[claim]] ",
-                   {"name", "method", "level", "side", "n", "p", "tolerance", "about", "replicates", "p_points",
-                    "confidence"});
+                   {"name", "method", "level", "side", "n", "p", "tolerance", "about", "replicates",
+                    "p_points", "confidence"});
     engine::Claim c;
     c.seed = seed;
     c.name = fmt::format("claim {}", claims.size() + 1);
@@ -148,8 +152,10 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
     if (const auto* sd = t.get("side")) {
       const std::string name = string_of(ctx, *sd, "[[claim]] side");
       if (!methods::parse_side(name, c.side))
-        ctx.fail(sd, fmt::format("[[claim]] side \"{}\" is not one of \"two-sided\", \"lower-bound\", \"upper-bound\"",
-                                 name));
+        ctx.fail(
+            sd,
+            fmt::format("[[claim]] side \"{}\" is not one of \"two-sided\", \"lower-bound\", \"upper-bound\"",
+                        name));
       if (!c.method.method->supports(c.side))
         ctx.fail(sd, fmt::format("[[claim]] {} does not define the side \"{}\"", c.method.label, name));
     }
@@ -160,8 +166,9 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
       if (!(c.tolerance >= 0))
         ctx.fail(tol, fmt::format("[[claim]] tolerance = {} must not be negative", value_text(*tol)));
       if (!(c.tolerance < c.level))
-        ctx.fail(tol, fmt::format("[[claim]] tolerance = {} is not below the level {}: the claim would say nothing",
-                                  value_text(*tol), c.level));
+        ctx.fail(tol, fmt::format(
+                          "[[claim]] tolerance = {} is not below the level {}: the claim would say nothing",
+                          value_text(*tol), c.level));
     }
     if (const auto* ab = t.get("about")) {
       const std::string a = string_of(ctx, *ab, "[[claim]] about");

@@ -69,7 +69,7 @@ inline std::string type_name(const toml::node& node) {
 }
 
 inline void reject_unknown(const Context& ctx, const toml::table& table, const std::string& where,
-                    std::initializer_list<std::string_view> allowed) {
+                           std::initializer_list<std::string_view> allowed) {
   for (const auto& [key, node] : table) {
     if (std::find(allowed.begin(), allowed.end(), key.str()) != allowed.end()) continue;
     std::string list;

@@ -24,7 +24,8 @@ struct AuditArgs {
 
 engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
   if (a.method.empty()) throw InputError("--method", "is required without --claims (e.g. --method wilson)");
-  if (app.count("--level") == 0) throw InputError("--level", "is required without --claims (e.g. --level 0.95)");
+  if (app.count("--level") == 0)
+    throw InputError("--level", "is required without --claims (e.g. --level 0.95)");
   if (a.n.empty()) throw InputError("--n", "is required without --claims (e.g. --n 30:100)");
   if (a.p.empty()) throw InputError("--p", "is required without --claims (e.g. --p 0.01:0.99)");
   engine::Claim c;
@@ -36,9 +37,11 @@ engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
     throw InputError("--side", fmt::format("{} does not define the side {}", c.method.label, a.side));
   c.n = parse_n_set(a.n, "--n");
   std::tie(c.p_lo, c.p_hi) = parse_p_range(a.p, "--p");
-  if (!(a.tolerance >= 0)) throw InputError("--tolerance", fmt::format("{:g} must not be negative", a.tolerance));
+  if (!(a.tolerance >= 0))
+    throw InputError("--tolerance", fmt::format("{:g} must not be negative", a.tolerance));
   if (!(a.tolerance < a.level))
-    throw InputError("--tolerance", fmt::format("{:g} is not below the level: the claim would say nothing", a.tolerance));
+    throw InputError("--tolerance",
+                     fmt::format("{:g} is not below the level: the claim would say nothing", a.tolerance));
   c.tolerance = a.tolerance;
   if (a.about == "minimum")
     c.kind = engine::ClaimKind::minimum;
@@ -49,7 +52,8 @@ engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
   if (a.replicates < 0) throw InputError("--replicates", "must not be negative");
   c.replicates = static_cast<std::uint64_t>(a.replicates);
   if (a.p_points < 2 || static_cast<std::size_t>(a.p_points) > scenarios::max_claim_p_points)
-    throw InputError("--p-points", fmt::format("{} is outside 2..{}", a.p_points, scenarios::max_claim_p_points));
+    throw InputError("--p-points",
+                     fmt::format("{} is outside 2..{}", a.p_points, scenarios::max_claim_p_points));
   c.p_points = static_cast<std::size_t>(a.p_points);
   if (!(a.confidence > 0 && a.confidence < 1))
     throw InputError("--confidence", fmt::format("{:g} is outside (0, 1)", a.confidence));
@@ -73,8 +77,8 @@ int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out) {
     throw InputError("--format", fmt::format("\"{}\" is not one of text, csv, json", a.format));
   std::vector<engine::Claim> claims;
   if (!a.claims_file.empty()) {
-    for (const char* opt : {"--method", "--level", "--n", "--p", "--side", "--tolerance", "--about", "--replicates",
-                            "--p-points", "--confidence", "--seed"})
+    for (const char* opt : {"--method", "--level", "--n", "--p", "--side", "--tolerance", "--about",
+                            "--replicates", "--p-points", "--confidence", "--seed"})
       if (app.count(opt) > 0) throw InputError(opt, "goes with a claim from options, not with --claims");
     claims = scenarios::load_claims_file(a.claims_file);
   } else {
@@ -102,25 +106,31 @@ Command add_audit_command(CLI::App& app) {
   auto* audit = app.add_subcommand(
       "audit",
       "Verdict on a coverage claim: holds (exit 0), refuted (3, with the worst case) or inconclusive (4)");
-  audit->add_option("--claims,--scenario", a->claims_file, "claims file (TOML) holding one or more [[claim]]");
+  audit->add_option("--claims,--scenario", a->claims_file,
+                    "claims file (TOML) holding one or more [[claim]]");
   audit->add_option("--method", a->method, "method id, optionally id:key=value,...");
   audit->add_option("--level", a->level, "nominal confidence level in (0, 1)");
   audit->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
   audit->add_option("--n", a->n, "sample sizes: A:B, A:B:STEP or a list A,B,C");
   audit->add_option("--p", a->p, "true-proportion range LO:HI (or one value)");
   audit->add_option("--tolerance", a->tolerance, "the claim is coverage >= level - tolerance (default 0)");
-  audit->add_option("--about", a->about, "minimum (default: the infimum over p) or mean (over p uniform on the range)");
+  audit->add_option("--about", a->about,
+                    "minimum (default: the infimum over p) or mean (over p uniform on the range)");
   audit->add_option("--replicates", a->replicates,
                     "judge by Monte Carlo with this many replicates per cell instead of exact sums");
   audit->add_option("--p-points", a->p_points, "Monte Carlo: p points across the range (default 101)");
-  audit->add_option("--confidence", a->confidence, "Monte Carlo: simultaneous confidence of the bounds (default 0.95)");
+  audit->add_option("--confidence", a->confidence,
+                    "Monte Carlo: simultaneous confidence of the bounds (default 0.95)");
   audit->add_option("--seed", a->seed, "Monte Carlo: stream key (default 0)");
   audit->add_option("--format", a->format, "text (default), csv or json");
   audit->add_option("-o,--output", a->output, "write the verdict table to this file instead of stdout");
-  audit->add_option("--threads", a->threads, "worker threads (default: all cores)")->check(integer_in(1, 4096));
+  audit->add_option("--threads", a->threads, "worker threads (default: all cores)")
+      ->check(integer_in(1, 4096));
   audit->footer(
-      "Exact claims (the default) are decided with the exact continuous infimum (or exact mean) of the binomial\n"
-      "coverage; simulated claims with Clopper-Pearson bounds made simultaneous by Bonferroni over every cell.");
+      "Exact claims (the default) are decided with the exact continuous infimum (or exact mean) of the "
+      "binomial\n"
+      "coverage; simulated claims with Clopper-Pearson bounds made simultaneous by Bonferroni over every "
+      "cell.");
   return {audit, [a, audit](std::ostream& out, std::ostream&) { return cmd_audit(*a, *audit, out); }};
 }
 

@@ -21,9 +21,10 @@ struct PlanArgs {
 };
 
 std::string figures_text(const engine::PlanFigures& f) {
-  return fmt::format("infimum {:.6f} (p = {:.6g}), mean {:.6f}, largest expected width {:.6f} (p = {:.4g}), "
-                     "largest margin {:.6f}",
-                     f.inf_coverage, f.inf_coverage_p, f.mean_coverage, f.max_width, f.max_width_p, f.max_margin);
+  return fmt::format(
+      "infimum {:.6f} (p = {:.6g}), mean {:.6f}, largest expected width {:.6f} (p = {:.4g}), "
+      "largest margin {:.6f}",
+      f.inf_coverage, f.inf_coverage_p, f.mean_coverage, f.max_width, f.max_width_p, f.max_margin);
 }
 
 int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out) {
@@ -55,23 +56,26 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out) {
   add("--max-width", a.max_width, engine::Requirement::max_width, false);
   add("--max-margin", a.max_margin, engine::Requirement::max_margin, false);
   if (base.requirements.empty())
-    throw InputError("plan", "state at least one of --min-coverage, --mean-coverage, --max-width, --max-margin");
+    throw InputError("plan",
+                     "state at least one of --min-coverage, --mean-coverage, --max-width, --max-margin");
   std::vector<engine::PlanRequest> requests;
   for (const auto& m : a.methods) {
     engine::PlanRequest q = base;
     q.method = parse_method_option(m);
     if (!q.method.method->supports(q.side))
-      throw InputError("--method " + m, fmt::format("{} does not define the side {}", q.method.label, a.side));
+      throw InputError("--method " + m,
+                       fmt::format("{} does not define the side {}", q.method.label, a.side));
     requests.push_back(std::move(q));
   }
   std::string reqs;
-  for (const auto& [r, v] : base.requirements) reqs += fmt::format("{}{} {:g}", reqs.empty() ? "" : ", ", engine::requirement_name(r), v);
+  for (const auto& [r, v] : base.requirements)
+    reqs += fmt::format("{}{} {:g}", reqs.empty() ? "" : ", ", engine::requirement_name(r), v);
   const bool csv = a.format == "csv";
   if (csv)
     out << "method,answer,n,inf_coverage,inf_coverage_p,mean_coverage,max_width,max_width_p,max_margin\n";
   else
-    out << fmt::format("Plan: {} at {:g} % ({}), p in [{:g}, {:g}], n searched {}..{}\n\n", reqs, 100 * base.level,
-                       a.side, base.p_lo, base.p_hi, base.n_from, base.n_to);
+    out << fmt::format("Plan: {} at {:g} % ({}), p in [{:g}, {:g}], n searched {}..{}\n\n", reqs,
+                       100 * base.level, a.side, base.p_lo, base.p_hi, base.n_from, base.n_to);
   std::vector<std::pair<std::string, engine::PlanResult>> results;
   for (const auto& q : requests) {
     const engine::PlanResult r = engine::plan_sample_size(q, a.threads);
@@ -82,9 +86,9 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out) {
           out << fmt::format("\"{}\",{},,,,,,,\n", q.method.label, which);
           return;
         }
-        out << fmt::format("\"{}\",{},{},{:.17g},{:.17g},{:.17g},{:.17g},{:.17g},{:.17g}\n", q.method.label, which,
-                           f.n, f.inf_coverage, f.inf_coverage_p, f.mean_coverage, f.max_width, f.max_width_p,
-                           f.max_margin);
+        out << fmt::format("\"{}\",{},{},{:.17g},{:.17g},{:.17g},{:.17g},{:.17g},{:.17g}\n", q.method.label,
+                           which, f.n, f.inf_coverage, f.inf_coverage_p, f.mean_coverage, f.max_width,
+                           f.max_width_p, f.max_margin);
       };
       row("first", r.found, r.first);
       row("from", r.stable_found, r.stable);
@@ -108,12 +112,15 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out) {
       for (const auto& [label, r] : results) width = std::max(width, label.size());
       out << fmt::format("  {:<{}}  {:>8}  {:>8}\n", "method", width, "first n", "from n");
       for (const auto& [label, r] : results)
-        out << fmt::format("  {:<{}}  {:>8}  {:>8}\n", label, width, r.found ? std::to_string(r.first.n) : "-",
+        out << fmt::format("  {:<{}}  {:>8}  {:>8}\n", label, width,
+                           r.found ? std::to_string(r.first.n) : "-",
                            r.stable_found ? std::to_string(r.stable.n) : "-");
       out << '\n';
     }
-    out << "Coverage oscillates in n: the first n can meet a coverage requirement while some larger n fail it;\n"
-           "\"every n from\" is safe throughout the search range. The margin is the largest over every outcome\n"
+    out << "Coverage oscillates in n: the first n can meet a coverage requirement while some larger n fail "
+           "it;\n"
+           "\"every n from\" is safe throughout the search range. The margin is the largest over every "
+           "outcome\n"
            "x = 0..n (half the width two-sided, estimate to limit one-sided), so it does not depend on p.\n"
         << output::coverage_caution << '\n';
   }
@@ -135,7 +142,8 @@ Command add_plan_command(CLI::App& app) {
   plan->add_option("--max-width", a->max_width, "expected width <= W at every p of the range");
   plan->add_option("--max-margin", a->max_margin, "largest margin of error over every outcome <= M");
   plan->add_option("--format", a->format, "text (default) or csv");
-  plan->add_option("--threads", a->threads, "worker threads (default: all cores)")->check(integer_in(1, 4096));
+  plan->add_option("--threads", a->threads, "worker threads (default: all cores)")
+      ->check(integer_in(1, 4096));
   return {plan, [a, plan](std::ostream& out, std::ostream&) { return cmd_plan(*a, *plan, out); }};
 }
 

@@ -26,7 +26,8 @@ int cmd_rank(const RankArgs& a, std::ostream& out) {
   else if (a.criterion == "safest")
     o.criterion = output::RankCriterion::safest;
   else
-    throw InputError("--criterion", fmt::format("\"{}\" is not one of shortest, closest, safest", a.criterion));
+    throw InputError("--criterion",
+                     fmt::format("\"{}\" is not one of shortest, closest, safest", a.criterion));
   if (!(a.tolerance >= 0 && a.tolerance < 1))
     throw InputError("--tolerance", fmt::format("{:g} is outside [0, 1)", a.tolerance));
   o.tolerance = a.tolerance;
@@ -58,14 +59,18 @@ Command add_rank_command(CLI::App& app) {
   auto a = std::make_shared<RankArgs>();
   auto* rank = app.add_subcommand("rank", "Methods of a cube ranked by a stated criterion, per n band");
   rank->add_option("CUBE", a->cube, "cube file (.h5)")->required();
-  rank->add_option("--criterion", a->criterion,
-                   "shortest (default: shortest mean width among methods whose worst coverage stays at or above "
-                   "nominal - tolerance), closest (smallest RMS deviation from nominal) or safest (largest worst "
-                   "coverage)");
-  rank->add_option("--tolerance", a->tolerance, "with shortest: the coverage gate is nominal - tolerance (default 0)");
-  rank->add_option("--bands", a->bands, "n bands A:B,C:D,... (default: three bands of equally many n values)");
+  rank->add_option(
+      "--criterion", a->criterion,
+      "shortest (default: shortest mean width among methods whose worst coverage stays at or above "
+      "nominal - tolerance), closest (smallest RMS deviation from nominal) or safest (largest worst "
+      "coverage)");
+  rank->add_option("--tolerance", a->tolerance,
+                   "with shortest: the coverage gate is nominal - tolerance (default 0)");
+  rank->add_option("--bands", a->bands,
+                   "n bands A:B,C:D,... (default: three bands of equally many n values)");
   rank->add_option("--format", a->format, "text (default) or csv");
-  rank->add_flag("--no-pairs", a->no_pairs, "skip the paired Monte Carlo differences of simulated-only cubes");
+  rank->add_flag("--no-pairs", a->no_pairs,
+                 "skip the paired Monte Carlo differences of simulated-only cubes");
   return {rank, [a](std::ostream& out, std::ostream&) { return cmd_rank(*a, out); }};
 }
 

@@ -31,8 +31,9 @@ struct RankOptions {
 struct RankEntry {
   std::size_t method = 0;
   int rank = 0;
-  bool eligible = true;       // worst coverage >= nominal - tolerance
-  double worst_coverage = 0;  // exact: min over the band's n of the continuous infimum; simulated: grid minimum
+  bool eligible = true;  // worst coverage >= nominal - tolerance
+  double worst_coverage =
+      0;  // exact: min over the band's n of the continuous infimum; simulated: grid minimum
   std::int64_t worst_n = 0;
   double mean_width = 0, mean_coverage = 0, rms_deviation = 0;  // means over the band's n
   bool has_pair = false;  // paired difference of coverage against the group's first method
@@ -49,7 +50,8 @@ struct RankGroup {
 
 /// Throws InputError for an incomplete cube or a band holding none of its n.
 std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& options);
-std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& groups, const RankOptions& options);
+std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& groups,
+                      const RankOptions& options);
 std::string rank_csv(const CubeReader& cube, const std::vector<RankGroup>& groups);
 
 }  // namespace covergrid::output

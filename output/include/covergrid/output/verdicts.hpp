@@ -14,7 +14,7 @@ enum class VerdictFormat { text, csv, json };
 /// "30..500 (k values)".
 std::string n_set_text(const std::vector<int>& n);
 
-std::string verdict_table(const std::vector<engine::Claim>& claims, const std::vector<engine::Verdict>& verdicts,
-                          VerdictFormat format);
+std::string verdict_table(const std::vector<engine::Claim>& claims,
+                          const std::vector<engine::Verdict>& verdicts, VerdictFormat format);
 
 }  // namespace covergrid::output

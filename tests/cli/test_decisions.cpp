@@ -1,0 +1,192 @@
+// audit, plan and rank through the command line: verdict exit codes, the
+// verdict tables, bad input (exit 2, nothing written).
+#include "support.hpp"
+
+#include "covergrid/cli/cli.hpp"
+#include "covergrid/output/hdf5.hpp"
+
+#include <catch2/catch.hpp>
+#include <fmt/format.h>
+
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+
+namespace fs = std::filesystem;
+using covergrid::test::ScratchDir;
+
+namespace {
+
+struct Result {
+  int status;
+  std::string out, err;
+};
+
+Result call(const std::vector<std::string>& args) {
+  std::ostringstream out, err;
+  const int status = covergrid::cli::run_cli(args, out, err);
+  return {status, out.str(), err.str()};
+}
+
+std::string slurp(const fs::path& p) {
+  std::ifstream in(p);
+  return std::string(std::istreambuf_iterator<char>(in), {});
+}
+
+}  // namespace
+
+TEST_CASE("audit exit codes follow the verdict", "[cli][audit]") {
+  const auto holds = call({"audit", "--method", "clopper-pearson", "--level", "0.95", "--n", "5:60", "--p", "0:1"});
+  CHECK(holds.status == 0);
+  CHECK(holds.out.find(": holds") != std::string::npos);
+  CHECK(holds.out.find("long-run property") != std::string::npos);
+  const auto refuted =
+      call({"audit", "--method", "wald", "--level", "0.95", "--n", "10:100", "--p", "0.01:0.99", "--tolerance", "0.02"});
+  CHECK(refuted.status == 3);
+  CHECK(refuted.out.find(": refuted") != std::string::npos);
+  CHECK(refuted.out.find("worst     n = ") != std::string::npos);
+  // The threshold on a cell's exact coverage (read from the exact verdict's
+  // CSV): simulation cannot decide.
+  const auto exact = call({"audit", "--method", "wilson", "--level", "0.95", "--n", "40", "--p", "0.3", "--format",
+                           "csv"});
+  REQUIRE(exact.status == 3);
+  const std::string row = exact.out.substr(exact.out.find('\n') + 1);
+  std::vector<std::string> fields;
+  std::stringstream split(row);
+  for (std::string f; std::getline(split, f, ',');) fields.push_back(f);
+  REQUIRE(fields.size() > 17);
+  const double coverage = std::stod(fields[17]);  // worst_coverage
+  REQUIRE(coverage < 0.95);
+  const auto inconclusive =
+      call({"audit", "--method", "wilson", "--level", "0.95", "--n", "40", "--p", "0.3", "--replicates", "300", "--seed",
+            "3", "--tolerance", fmt::format("{:.17g}", 0.95 - coverage)});
+  CHECK(inconclusive.status == 4);
+  CHECK(inconclusive.out.find(": inconclusive") != std::string::npos);
+  CHECK(inconclusive.out.find("Bonferroni over 1 cells") != std::string::npos);
+}
+
+TEST_CASE("audit reads a claims file and writes CSV and JSON verdict tables", "[cli][audit]") {
+  ScratchDir dir("claims");
+  std::ofstream(dir.file("claims.toml")) << R"([[claim]]
+name = "exact holds"
+method = "clopper-pearson"
+level = 0.9
+n = { from = 10, to = 30 }
+p = { from = 0.0, to = 1.0 }
+
+[[claim]]
+name = "wald refuted"
+method = "wald"
+level = 0.95
+n = [20, 40]
+p = { from = 0.05, to = 0.95 }
+tolerance = 0.01
+)";
+  const auto csv = call({"audit", "--claims", dir.file("claims.toml"), "--format", "csv"});
+  CHECK(csv.status == 3);
+  CHECK(csv.out.rfind("claim,verdict,method,", 0) == 0);
+  CHECK(csv.out.find("exact holds,holds,clopper-pearson") != std::string::npos);
+  CHECK(csv.out.find("wald refuted,refuted,wald") != std::string::npos);
+  const auto json = call({"audit", "--scenario", dir.file("claims.toml"), "--format", "json", "-o", dir.file("v.json")});
+  CHECK(json.status == 3);
+  const std::string text = slurp(dir.file("v.json"));
+  CHECK(text.find("\"verdict\": \"refuted\"") != std::string::npos);
+  CHECK(text.find("\"caution\":") != std::string::npos);
+  CHECK_FALSE(fs::exists(dir.file("v.json.partial")));
+}
+
+TEST_CASE("audit and plan reject impossible requests with exit 2", "[cli][audit][plan][bad-input]") {
+  ScratchDir dir("bad-decisions");
+  const std::vector<std::pair<std::vector<std::string>, std::string>> cases = {
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.1:0.9", "--tolerance", "-0.01"},
+       "--tolerance: -0.01 must not be negative"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "50:10", "--p", "0.1:0.9"}, "the range 50..10 is empty"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.5:1.2"}, "p must lie in [0, 1]"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.9:0.1"}, "is empty"},
+      {{"audit", "--method", "wald", "--level", "1.5", "--n", "10:20", "--p", "0.1:0.9"}, "--level: 1.5 is outside"},
+      {{"audit", "--level", "0.95", "--n", "10:20", "--p", "0.1:0.9"}, "--method: is required"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.1:0.9", "--format", "xml"},
+       "--format: \"xml\" is not one of"},
+      {{"audit", "--claims", dir.file("missing.toml")}, "cannot open the claims file"},
+      {{"audit", "--claims", dir.file("missing.toml"), "--level", "0.9"}, "--level: goes with a claim from options"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10", "--p", "0.5", "-o", dir.file("no/such/v.txt")},
+       "does not exist"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9"}, "state at least one of"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--min-coverage", "1.2"},
+       "--min-coverage: 1.2 is outside (0, 1)"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--max-margin", "0", "--n", "1:50"},
+       "--max-margin: 0 is outside (0, 1]"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--max-width", "0.1", "--n", "50:5"},
+       "is empty"},
+      {{"plan", "--method", "blaker", "--side", "lower-bound", "--level", "0.95", "--p", "0.1:0.9", "--max-width",
+        "0.1"},
+       "does not define the side"},
+  };
+  for (const auto& [args, expected] : cases) {
+    const auto r = call(args);
+    INFO(args[0] << " ... expecting " << expected << "; got: " << r.err);
+    CHECK(r.status == 2);
+    CHECK(r.err.find(expected) != std::string::npos);
+  }
+  CHECK(fs::is_empty(dir.path()));
+}
+
+TEST_CASE("plan prints first and stable n for several methods", "[cli][plan]") {
+  const auto r = call({"plan", "--method", "wald-half", "--method", "wilson", "--level", "0.95", "--p", "0:1",
+                       "--max-margin", "0.05", "--n", "1:1000", "--format", "csv"});
+  REQUIRE(r.status == 0);
+  // Common practice: the conservative 95 % margin 0.05 needs n = 385.
+  CHECK(r.out.find("\"wald-half\",first,385,") != std::string::npos);
+  CHECK(r.out.find("\"wald-half\",from,385,") != std::string::npos);
+  CHECK(r.out.find("\"wilson\",first,") != std::string::npos);
+  const auto text = call({"plan", "--method", "jeffreys", "--level", "0.95", "--p", "0.05:0.95", "--min-coverage",
+                          "0.94", "--n", "1:1000"});
+  REQUIRE(text.status == 0);
+  CHECK(text.out.find("first n that meets it") != std::string::npos);
+  CHECK(text.out.find("long-run property") != std::string::npos);
+}
+
+TEST_CASE("rank orders methods by the stated criterion per n band", "[cli][rank]") {
+  ScratchDir dir("rank");
+  std::ofstream(dir.file("s.toml")) << R"(seed = 4
+[grid]
+n = { from = 10, to = 40 }
+p = { from = 0.02, to = 0.98, count = 49 }
+levels = [0.95]
+[[method]]
+id = "wald"
+[[method]]
+id = "wilson"
+[[method]]
+id = "clopper-pearson"
+[[method]]
+id = "jeffreys"
+[output]
+cube = "s.h5"
+tables = ""
+)";
+  REQUIRE(call({"run", dir.file("s.toml"), "--quiet"}).status == 0);
+  const auto r = call({"rank", dir.file("s.h5"), "--bands", "10:20,21:40", "--format", "csv"});
+  REQUIRE(r.status == 0);
+  // Clopper-Pearson never falls below nominal (a proven property), so with
+  // tolerance 0 it is the only eligible method and ranks first in each band.
+  CHECK(r.out.find("binomial,two-sided,0.95,10,20,exact,1,\"clopper-pearson\",1,") != std::string::npos);
+  CHECK(r.out.find("binomial,two-sided,0.95,21,40,exact,1,\"clopper-pearson\",1,") != std::string::npos);
+  CHECK(r.out.find("\"wald\",0,") != std::string::npos);
+  // A tolerance wide enough for Wilson and Jeffreys puts the shorter first.
+  const auto wide = call({"rank", dir.file("s.h5"), "--tolerance", "0.2", "--bands", "21:40"});
+  REQUIRE(wide.status == 0);
+  CHECK(wide.out.find("shortest mean width") != std::string::npos);
+  const auto bad = call({"rank", dir.file("s.h5"), "--bands", "50:60"});
+  CHECK(bad.status == 2);
+  CHECK(bad.err.find("holds none of the cube's n") != std::string::npos);
+  {
+    namespace o = covergrid::output;
+    o::File f = o::File::create(dir.file("future.h5"));
+    o::set_attr(f.id(), "format", std::string("covergrid-cube"));
+    o::set_attr(f.id(), "format_version", std::int64_t{99});
+  }
+  const auto future = call({"rank", dir.file("future.h5")});
+  CHECK(future.status == 2);
+  CHECK(future.err.find("format version 99") != std::string::npos);
+}
