@@ -82,7 +82,7 @@ for n, row in rows.items():
 ax.axhline(level, color="black", ls="--", lw=0.8, label=f"nominal {level:g}")
 ax.set(xlabel="true proportion p", ylabel="coverage probability", title=title, xlim=(p[0], p[-1]))
 ax.grid(alpha=0.3)
-ax.legend(loc="lower right")
+ax.legend(loc="best")
 fig.subplots_adjust(bottom=0.2)
 fig.text(0.02, 0.02, "Coverage is a long-run property of the procedure: the share of intervals,\n"
          "over repeated samples at a fixed p, that contain p. It says nothing about one interval.",
