@@ -36,19 +36,20 @@ std::string slurp(const fs::path& p) {
 }  // namespace
 
 TEST_CASE("audit exit codes follow the verdict", "[cli][audit]") {
-  const auto holds = call({"audit", "--method", "clopper-pearson", "--level", "0.95", "--n", "5:60", "--p", "0:1"});
+  const auto holds =
+      call({"audit", "--method", "clopper-pearson", "--level", "0.95", "--n", "5:60", "--p", "0:1"});
   CHECK(holds.status == 0);
   CHECK(holds.out.find(": holds") != std::string::npos);
   CHECK(holds.out.find("long-run property") != std::string::npos);
-  const auto refuted =
-      call({"audit", "--method", "wald", "--level", "0.95", "--n", "10:100", "--p", "0.01:0.99", "--tolerance", "0.02"});
+  const auto refuted = call({"audit", "--method", "wald", "--level", "0.95", "--n", "10:100", "--p",
+                             "0.01:0.99", "--tolerance", "0.02"});
   CHECK(refuted.status == 3);
   CHECK(refuted.out.find(": refuted") != std::string::npos);
   CHECK(refuted.out.find("worst     n = ") != std::string::npos);
   // The threshold on a cell's exact coverage (read from the exact verdict's
   // CSV): simulation cannot decide.
-  const auto exact = call({"audit", "--method", "wilson", "--level", "0.95", "--n", "40", "--p", "0.3", "--format",
-                           "csv"});
+  const auto exact =
+      call({"audit", "--method", "wilson", "--level", "0.95", "--n", "40", "--p", "0.3", "--format", "csv"});
   REQUIRE(exact.status == 3);
   const std::string row = exact.out.substr(exact.out.find('\n') + 1);
   std::vector<std::string> fields;
@@ -58,8 +59,8 @@ TEST_CASE("audit exit codes follow the verdict", "[cli][audit]") {
   const double coverage = std::stod(fields[17]);  // worst_coverage
   REQUIRE(coverage < 0.95);
   const auto inconclusive =
-      call({"audit", "--method", "wilson", "--level", "0.95", "--n", "40", "--p", "0.3", "--replicates", "300", "--seed",
-            "3", "--tolerance", fmt::format("{:.17g}", 0.95 - coverage)});
+      call({"audit", "--method", "wilson", "--level", "0.95", "--n", "40", "--p", "0.3", "--replicates",
+            "300", "--seed", "3", "--tolerance", fmt::format("{:.17g}", 0.95 - coverage)});
   CHECK(inconclusive.status == 4);
   CHECK(inconclusive.out.find(": inconclusive") != std::string::npos);
   CHECK(inconclusive.out.find("Bonferroni over 1 cells") != std::string::npos);
@@ -87,7 +88,8 @@ tolerance = 0.01
   CHECK(csv.out.rfind("claim,verdict,method,", 0) == 0);
   CHECK(csv.out.find("exact holds,holds,clopper-pearson") != std::string::npos);
   CHECK(csv.out.find("wald refuted,refuted,wald") != std::string::npos);
-  const auto json = call({"audit", "--scenario", dir.file("claims.toml"), "--format", "json", "-o", dir.file("v.json")});
+  const auto json =
+      call({"audit", "--scenario", dir.file("claims.toml"), "--format", "json", "-o", dir.file("v.json")});
   CHECK(json.status == 3);
   const std::string text = slurp(dir.file("v.json"));
   CHECK(text.find("\"verdict\": \"refuted\"") != std::string::npos);
@@ -98,28 +100,36 @@ tolerance = 0.01
 TEST_CASE("audit and plan reject impossible requests with exit 2", "[cli][audit][plan][bad-input]") {
   ScratchDir dir("bad-decisions");
   const std::vector<std::pair<std::vector<std::string>, std::string>> cases = {
-      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.1:0.9", "--tolerance", "-0.01"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.1:0.9", "--tolerance",
+        "-0.01"},
        "--tolerance: -0.01 must not be negative"},
-      {{"audit", "--method", "wald", "--level", "0.95", "--n", "50:10", "--p", "0.1:0.9"}, "the range 50..10 is empty"},
-      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.5:1.2"}, "p must lie in [0, 1]"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "50:10", "--p", "0.1:0.9"},
+       "the range 50..10 is empty"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.5:1.2"},
+       "p must lie in [0, 1]"},
       {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.9:0.1"}, "is empty"},
-      {{"audit", "--method", "wald", "--level", "1.5", "--n", "10:20", "--p", "0.1:0.9"}, "--level: 1.5 is outside"},
+      {{"audit", "--method", "wald", "--level", "1.5", "--n", "10:20", "--p", "0.1:0.9"},
+       "--level: 1.5 is outside"},
       {{"audit", "--level", "0.95", "--n", "10:20", "--p", "0.1:0.9"}, "--method: is required"},
       {{"audit", "--method", "wald", "--level", "0.95", "--n", "10:20", "--p", "0.1:0.9", "--format", "xml"},
        "--format: \"xml\" is not one of"},
       {{"audit", "--claims", dir.file("missing.toml")}, "cannot open the claims file"},
-      {{"audit", "--claims", dir.file("missing.toml"), "--level", "0.9"}, "--level: goes with a claim from options"},
-      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10", "--p", "0.5", "-o", dir.file("no/such/v.txt")},
+      {{"audit", "--claims", dir.file("missing.toml"), "--level", "0.9"},
+       "--level: goes with a claim from options"},
+      {{"audit", "--method", "wald", "--level", "0.95", "--n", "10", "--p", "0.5", "-o",
+        dir.file("no/such/v.txt")},
        "does not exist"},
       {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9"}, "state at least one of"},
       {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--min-coverage", "1.2"},
        "--min-coverage: 1.2 is outside (0, 1)"},
-      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--max-margin", "0", "--n", "1:50"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--max-margin", "0", "--n",
+        "1:50"},
        "--max-margin: 0 is outside (0, 1]"},
-      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--max-width", "0.1", "--n", "50:5"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--p", "0.1:0.9", "--max-width", "0.1", "--n",
+        "50:5"},
        "is empty"},
-      {{"plan", "--method", "blaker", "--side", "lower-bound", "--level", "0.95", "--p", "0.1:0.9", "--max-width",
-        "0.1"},
+      {{"plan", "--method", "blaker", "--side", "lower-bound", "--level", "0.95", "--p", "0.1:0.9",
+        "--max-width", "0.1"},
        "does not define the side"},
   };
   for (const auto& [args, expected] : cases) {
@@ -139,8 +149,8 @@ TEST_CASE("plan prints first and stable n for several methods", "[cli][plan]") {
   CHECK(r.out.find("\"wald-half\",first,385,") != std::string::npos);
   CHECK(r.out.find("\"wald-half\",from,385,") != std::string::npos);
   CHECK(r.out.find("\"wilson\",first,") != std::string::npos);
-  const auto text = call({"plan", "--method", "jeffreys", "--level", "0.95", "--p", "0.05:0.95", "--min-coverage",
-                          "0.94", "--n", "1:1000"});
+  const auto text = call({"plan", "--method", "jeffreys", "--level", "0.95", "--p", "0.05:0.95",
+                          "--min-coverage", "0.94", "--n", "1:1000"});
   REQUIRE(text.status == 0);
   CHECK(text.out.find("first n that meets it") != std::string::npos);
   CHECK(text.out.find("long-run property") != std::string::npos);

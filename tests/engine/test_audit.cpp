@@ -84,7 +84,8 @@ TEST_CASE("the 95 % Wald interval's claim of 0.93 minimum coverage is refuted", 
   // It is an infimum: no p of a dense grid at any n does better than it.
   double grid_min = 1;
   for (int n = 1; n <= 100; ++n)
-    for (int i = 0; i <= 2000; ++i) grid_min = std::min(grid_min, wald_coverage(n, 0.01 + 0.98 * i / 2000, 0.95));
+    for (int i = 0; i <= 2000; ++i)
+      grid_min = std::min(grid_min, wald_coverage(n, 0.01 + 0.98 * i / 2000, 0.95));
   CHECK(v.worst_coverage <= grid_min + 1e-12);
   // Misses and coverage at the worst case add up to one.
   CHECK(v.worst_coverage + v.worst_miss_low + v.worst_miss_high == Approx(1.0).margin(1e-12));

@@ -113,7 +113,8 @@ TEST_CASE("mean-coverage and width plans match brute force over n", "[engine][pl
       for (int i = 0; i <= 20000; ++i) {
         const double p = 0.1 + 0.5 * i / 20000.0;
         double w = 0;
-        for (int x = 0; x <= n; ++x) w += methods::binomial_pmf(x, n, p) * t.width[static_cast<std::size_t>(x)];
+        for (int x = 0; x <= n; ++x)
+          w += methods::binomial_pmf(x, n, p) * t.width[static_cast<std::size_t>(x)];
         grid = std::max(grid, w);
       }
       const auto best = engine::max_expected_width(t, 0.1, 0.6);
