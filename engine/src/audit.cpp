@@ -85,7 +85,7 @@ Verdict audit_exact(const Claim& c, int threads) {
   Verdict v;
   v.threshold = c.threshold();
   v.n_count = c.n.size();
-  const double t = v.threshold;
+  const double t = v.threshold - coverage_decision_slack;
   std::vector<ExactRow> rows(c.n.size());
   for_each_index(c.n.size(), threads, [&](std::size_t i) {
     const IntervalTable table = build_table(*c.method.method, c.n[i], c.level, c.side);

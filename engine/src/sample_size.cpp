@@ -117,10 +117,12 @@ bool plan_meets(const PlanRequest& q, int n) {
       case Requirement::max_margin:
         break;
       case Requirement::min_coverage:
-        if (coverage_infimum(t, q.p_lo, hi, value).value < value) return false;
+        if (coverage_infimum(t, q.p_lo, hi, value - coverage_decision_slack).value <
+            value - coverage_decision_slack)
+          return false;
         break;
       case Requirement::mean_coverage:
-        if (coverage_uniform_mean(t, q.p_lo, hi) < value) return false;
+        if (coverage_uniform_mean(t, q.p_lo, hi) < value - coverage_decision_slack) return false;
         break;
       case Requirement::max_width:
         if (max_expected_width(t, q.p_lo, hi).first > value) return false;
@@ -139,45 +141,42 @@ PlanResult plan_sample_size(const PlanRequest& q, int threads) {
   PlanResult out;
   tbb::task_arena arena(threads > 0 ? threads : tbb::task_arena::automatic);
   const int block = std::max(16, 8 * arena.max_concurrency());
-  // Evaluates n in [lo, hi] in parallel; meets[n - lo].
-  auto evaluate = [&](int lo, int hi, std::vector<char>& meets) {
-    meets.assign(static_cast<std::size_t>(hi - lo + 1), 0);
+  // Verdict per n of the range: -1 not evaluated, 0 fails, 1 meets.
+  std::vector<signed char> known(static_cast<std::size_t>(q.n_to - q.n_from + 1), -1);
+  auto at = [&](int n) -> signed char& { return known[static_cast<std::size_t>(n - q.n_from)]; };
+  auto evaluate = [&](int lo, int hi) {  // n in [lo, hi], in parallel
     arena.execute([&] {
-      tbb::parallel_for(lo, hi + 1,
-                        [&](int n) { meets[static_cast<std::size_t>(n - lo)] = plan_meets(q, n); });
+      tbb::parallel_for(lo, hi + 1, [&](int n) {
+        if (at(n) < 0) at(n) = plan_meets(q, n) ? 1 : 0;
+      });
     });
-    out.evaluated += meets.size();
   };
-  // Downwards from n_to to the first failure: everything above it meets.
-  std::vector<char> meets;
-  int stable = q.n_to + 1;  // no stable n yet
-  bool failure_seen = false;
-  for (int hi = q.n_to; hi >= q.n_from && !failure_seen; hi -= block) {
+  // Downwards from n_to to the largest n that fails: every n above it meets.
+  int last_failure = q.n_from - 1;  // none yet
+  for (int hi = q.n_to; hi >= q.n_from && last_failure < q.n_from; hi -= block) {
     const int lo = std::max(q.n_from, hi - block + 1);
-    evaluate(lo, hi, meets);
-    for (int n = hi; n >= lo; --n) {
-      if (!meets[static_cast<std::size_t>(n - lo)]) {
-        failure_seen = true;
+    evaluate(lo, hi);
+    for (int n = hi; n >= lo; --n)
+      if (at(n) == 0) {
+        last_failure = n;
         break;
       }
-      stable = n;
-    }
   }
+  const int stable = last_failure + 1;
   out.stable_found = stable <= q.n_to;
-  // Upwards from n_from to the first n that meets (at most the stable n).
+  // Upwards from n_from to the first n that meets; below the last failure
+  // (above it every n meets, so the first is the stable n if none is found).
   int first = stable;
-  const int up_to = std::min(stable, q.n_to + 1) - 1;
-  bool pass_seen = false;
-  for (int lo = q.n_from; lo <= up_to && !pass_seen; lo += block) {
-    const int hi = std::min(up_to, lo + block - 1);
-    evaluate(lo, hi, meets);
+  for (int lo = q.n_from; lo < last_failure && first == stable; lo += block) {
+    const int hi = std::min(last_failure - 1, lo + block - 1);
+    evaluate(lo, hi);
     for (int n = lo; n <= hi; ++n)
-      if (meets[static_cast<std::size_t>(n - lo)]) {
+      if (at(n) == 1) {
         first = n;
-        pass_seen = true;
         break;
       }
   }
+  for (signed char k : known) out.evaluated += k >= 0;
   out.found = first <= q.n_to;
   if (out.found) out.first = plan_figures(q, first);
   if (out.stable_found) out.stable = stable == first ? out.first : plan_figures(q, stable);

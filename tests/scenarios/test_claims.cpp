@@ -83,3 +83,12 @@ TEST_CASE("malformed claims files are rejected with file, line and key", "[scena
     CHECK_THROWS_WITH(load_claims_text(c.text, "c.toml"), Catch::Contains(c.expected));
   }
 }
+
+TEST_CASE("the bundled example claims file loads", "[scenarios][claims]") {
+  const auto claims =
+      covergrid::scenarios::load_claims_file(COVERGRID_SCENARIO_DIR "/claims/release-claims.toml");
+  REQUIRE(claims.size() == 4);
+  CHECK(claims[1].side == covergrid::methods::Side::upper_bound);
+  CHECK(claims[3].replicates == 20000);
+  CHECK(claims[3].seed == 90210);
+}

@@ -14,6 +14,14 @@ namespace covergrid::engine {
 
 using CellMetrics = std::array<double, metric_count>;
 
+/// Decisions against a coverage threshold (audit, plan) count a value within
+/// this much below it as meeting it: limits are solved to ~1e-15 in p and
+/// coverage sums carry rounding of a few 1e-15, so exact methods whose
+/// infimum equals nominal in theory (one-sided Clopper-Pearson) come out at
+/// nominal - 2e-15; 1e-10 is far above that noise and far below any
+/// tolerance a claim states.
+inline constexpr double coverage_decision_slack = 1e-10;
+
 /// Every metric of `table` at true proportion p, from the window of Bin(n, p).
 /// Coverage uses the closed interval [L, U]. An unsupported table gives NaN.
 /// For a table whose limits are non-decreasing in x (checked per table, never
