@@ -14,6 +14,7 @@
 #include "covergrid/engine/random.hpp"
 #include "covergrid/engine/sampler.hpp"
 #include "covergrid/engine/run.hpp"
+#include "covergrid/engine/sample_size.hpp"
 #include "covergrid/methods/registry.hpp"
 #include "covergrid/output/cube.hpp"
 #include "covergrid/scenarios/loader.hpp"
@@ -21,6 +22,8 @@
 #include <boost/random/binomial_distribution.hpp>
 #include <boost/random/mersenne_twister.hpp>
 #include <fmt/format.h>
+#include <oneapi/tbb/parallel_for.h>
+#include <oneapi/tbb/task_arena.h>
 #include <sys/resource.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -282,6 +285,53 @@ replicates = 1000
       cells * 1000 / two, 1e5 * 1e4 / (cells * 1000 / two));
 }
 
+/// The sample-size search: wall time of plans over n up to 5000 on two
+/// threads, and against brute force (every n, full tables, whole range) on
+/// n up to 1500.
+void plan_search() {
+  using clock = std::chrono::steady_clock;
+  auto seconds = [](auto a, auto b) { return std::chrono::duration<double>(b - a).count(); };
+  fmt::print("plan (sample-size search, two threads):\n");
+  for (const char* id : {"wilson", "clopper-pearson", "jeffreys"}) {
+    e::PlanRequest q;
+    q.method = covergrid::methods::make_instance(id, {});
+    q.level = 0.95;
+    q.p_lo = 0.05;
+    q.p_hi = 0.95;
+    q.n_from = 1;
+    q.n_to = 5000;
+    q.requirements = {{e::Requirement::min_coverage, 0.94}};
+    const auto t0 = clock::now();
+    const auto r = e::plan_sample_size(q, 2);
+    const auto t1 = clock::now();
+    fmt::print(
+        "  {:<16} min coverage 0.94 over p in [0.05, 0.95], n = 1..5000: {:.2f} s (first n {}, from n {}, "
+        "{} n evaluated)\n",
+        id, seconds(t0, t1), r.found ? r.first.n : -1, r.stable_found ? r.stable.n : -1, r.evaluated);
+  }
+  e::PlanRequest q;
+  q.method = covergrid::methods::make_instance("wilson", {});
+  q.p_lo = 0.05;
+  q.p_hi = 0.95;
+  q.n_to = 1500;
+  q.requirements = {{e::Requirement::min_coverage, 0.94}};
+  const auto t0 = clock::now();
+  const auto r = e::plan_sample_size(q, 2);
+  const auto t1 = clock::now();
+  std::vector<char> meets(1501, 0);
+  tbb::task_arena arena(2);
+  arena.execute([&] {
+    tbb::parallel_for(1, 1501, [&](int n) {
+      const auto t = e::build_table(*q.method.method, n, 0.95, covergrid::methods::Side::two_sided);
+      meets[static_cast<std::size_t>(n)] = e::coverage_infimum(t, 0.05, 0.95).value >= 0.94;
+    });
+  });
+  const auto t2 = clock::now();
+  fmt::print(
+      "  wilson n = 1..1500: search {:.2f} s, brute force over every n {:.2f} s: ratio {:.2f} (first n {})\n",
+      seconds(t0, t1), seconds(t1, t2), seconds(t0, t1) / seconds(t1, t2), r.first.n);
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -293,5 +343,6 @@ int main(int argc, char** argv) {
   if (what == "all" || what == "memory") memory(argv[0]);
   if (what == "all" || what == "mc-costs") mc_costs();
   if (what == "all" || what == "mc-threads") mc_threads();
+  if (what == "all" || what == "plan") plan_search();
   return 0;
 }
