@@ -4,6 +4,7 @@
 
 #include "covergrid/cli/cli.hpp"
 #include "covergrid/output/hdf5.hpp"
+#include "covergrid/output/rank.hpp"
 
 #include <catch2/catch.hpp>
 #include <fmt/format.h>
@@ -199,4 +200,55 @@ tables = ""
   const auto future = call({"rank", dir.file("future.h5")});
   CHECK(future.status == 2);
   CHECK(future.err.find("format version 99") != std::string::npos);
+}
+
+TEST_CASE("rank gives paired differences for a simulated-only cube", "[cli][rank][mc]") {
+  ScratchDir dir("rank-mc");
+  std::ofstream(dir.file("s.toml")) << R"(seed = 77
+[grid]
+n = [15, 30]
+p = { from = 0.1, to = 0.5, count = 5 }
+levels = [0.9]
+[evaluate]
+exact = false
+replicates = 3000
+[[method]]
+id = "wilson"
+[[method]]
+id = "agresti-coull"
+[[method]]
+id = "wald"
+[output]
+cube = "s.h5"
+tables = ""
+)";
+  REQUIRE(call({"run", dir.file("s.toml"), "--quiet"}).status == 0);
+  const covergrid::output::CubeReader cube(dir.file("s.h5"));
+  covergrid::output::RankOptions o;
+  o.bands = {{15, 30}};
+  o.criterion = covergrid::output::RankCriterion::safest;
+  const auto groups = covergrid::output::rank_methods(cube, o);
+  REQUIRE(groups.size() == 1);
+  const auto& g = groups[0];
+  CHECK(g.simulated);
+  REQUIRE(g.entries.size() == 3);
+  CHECK_FALSE(g.entries[0].has_pair);
+  // On common random numbers the paired difference of each cell is exactly
+  // the difference of the two simulated coverages stored in the cube.
+  for (std::size_t r = 1; r < 3; ++r) {
+    const auto& e = g.entries[r];
+    REQUIRE(e.has_pair);
+    double sum = 0;
+    for (std::size_t ni = 0; ni < 2; ++ni) {
+      const auto a = cube.mc_row("coverage", 0, 0, 0, e.method, ni);
+      const auto b = cube.mc_row("coverage", 0, 0, 0, g.entries[0].method, ni);
+      for (std::size_t pi = 0; pi < a.size(); ++pi) sum += a[pi] - b[pi];
+    }
+    CHECK(e.pair_difference == Approx(sum / 10).margin(1e-12));
+    CHECK(e.pair_se >= 0);  // zero where two methods agree on every draw
+    if (cube.methods[e.method] == "wald") CHECK(e.pair_se > 0);
+    CHECK(e.worst_coverage <= g.entries[0].worst_coverage);
+  }
+  const auto text = call({"rank", dir.file("s.h5"), "--bands", "15:30"});
+  CHECK(text.out.find("coverage vs first (paired)") != std::string::npos);
 }
