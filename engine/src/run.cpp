@@ -312,14 +312,18 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
   const Plan plan = make_plan(scenario, options.chunk_cells);
   const auto combos = combos_of(scenario);
   RunReport report;
-  report.chunks_total = plan.chunks.size();
   const std::vector<char> done = sink.completed();
   if (done.size() != plan.chunks.size())
     throw std::logic_error("internal: sink reports a different chunk count than the plan");
 
+  std::vector<char> selected(plan.chunks.size(), options.only_chunks ? 0 : 1);
+  if (options.only_chunks)
+    for (std::size_t id : *options.only_chunks) selected.at(id) = 1;
   std::vector<const ChunkSpec*> todo;
   std::size_t cells_done = 0, cells_total = 0;
   for (const auto& c : plan.chunks) {
+    if (!selected[c.id]) continue;
+    ++report.chunks_total;
     cells_total += c.n_count * c.p_count;
     if (done[c.id]) {
       ++report.chunks_resumed;
@@ -380,6 +384,14 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
   });
   checkpoint();
   if (report.interrupted) return report;
+  if (options.only_chunks)
+    sink.finish();
+  else
+    finish_scenario(scenario, plan, sink);
+  return report;
+}
+
+void finish_scenario(const Scenario& scenario, const Plan& plan, ResultSink& sink) {
   // Chunks that span whole rows carried their grid statistics; otherwise
   // they are computed now, reading the rows back.
   if (plan.p_block < scenario.p.size()) {
@@ -387,7 +399,6 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
     if (scenario.replicates > 0) summarise(scenario, plan, sink, Source::mc);
   }
   sink.finish();
-  return report;
 }
 
 }  // namespace covergrid::engine

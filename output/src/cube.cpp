@@ -41,6 +41,7 @@ std::string utc_now() {
 struct Existing {
   std::string sha;
   bool complete;
+  std::string shard;
 };
 
 Existing read_existing(const std::string& path) {
@@ -50,7 +51,8 @@ Existing read_existing(const std::string& path) {
     if (!has_attr(root, "format") || get_attr_string(root, "format") != cube_format_name)
       throw InputError(path,
                        "exists and is not a covergrid cube; not touching it (use --overwrite to replace it)");
-    return {get_attr_string(root, "scenario_sha256"), get_attr_int(root, "complete") != 0};
+    return {get_attr_string(root, "scenario_sha256"), get_attr_int(root, "complete") != 0,
+            has_attr(root, "shard") ? get_attr_string(root, "shard") : std::string("all")};
   } catch (const CubeError&) {
     throw InputError(
         path, "exists and is not a readable covergrid cube; not touching it (use --overwrite to replace it)");
@@ -119,7 +121,9 @@ class Reader {
   const char* end_;
 };
 
-std::string serialise(const engine::ChunkResult& r) {
+}  // namespace
+
+std::string encode_chunk(const engine::ChunkResult& r) {
   std::string out;
   const std::uint8_t flags = static_cast<std::uint8_t>((r.has_exact ? 1 : 0) | (r.has_row_stats ? 2 : 0) |
                                                        (r.has_grid_stats ? 4 : 0) | (r.has_mc ? 8 : 0) |
@@ -140,7 +144,7 @@ std::string serialise(const engine::ChunkResult& r) {
   return out;
 }
 
-void deserialise(const char* data, std::size_t size, engine::ChunkResult& r) {
+void decode_chunk(const char* data, std::size_t size, engine::ChunkResult& r) {
   Reader in(data, size);
   const auto flags = in.get<std::uint8_t>();
   r.has_exact = flags & 1;
@@ -161,6 +165,8 @@ void deserialise(const char* data, std::size_t size, engine::ChunkResult& r) {
   if (r.has_mc_grid_stats)
     for (auto& v : r.mc_grid_stats) in.get_vector(v);
 }
+
+namespace {
 
 /// Writes at an explicit offset (the end of the last valid record), so the
 /// descriptor's own position never matters.
@@ -230,7 +236,7 @@ std::optional<JournalHeader> read_journal_header(const std::string& path) {
 
 std::string journal_path(const std::string& cube_path) { return cube_path + ".journal"; }
 
-OutputState inspect_output(const engine::Scenario& scenario, bool overwrite) {
+OutputState inspect_output(const engine::Scenario& scenario, bool overwrite, const std::string& shard) {
   const std::string& path = scenario.cube_path;
   const std::string journal = journal_path(path);
   if (overwrite) return OutputState::fresh;
@@ -240,6 +246,10 @@ OutputState inspect_output(const engine::Scenario& scenario, bool overwrite) {
       throw InputError(
           path,
           "holds the results of a different scenario (checksum differs); use --overwrite to replace it");
+    if (e.shard != shard)
+      throw InputError(
+          path, fmt::format("holds shard {} of this scenario, not {}; use --overwrite to replace it", e.shard,
+                            shard == "all" ? "the whole cube" : "shard " + shard));
     if (e.complete && !fs::exists(journal)) return OutputState::up_to_date;
   }
   if (fs::exists(journal)) {
@@ -254,9 +264,11 @@ OutputState inspect_output(const engine::Scenario& scenario, bool overwrite) {
   return OutputState::fresh;
 }
 
-CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& plan, bool resume)
+CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& plan, bool resume,
+                       const engine::ShardSelection* shard)
     : scenario_(scenario),
       plan_(plan),
+      shard_(shard),
       final_path_(scenario.cube_path),
       journal_path_(journal_path(scenario.cube_path)),
       temp_path_(partial_path(scenario.cube_path)),
@@ -317,18 +329,20 @@ std::vector<char> CubeWriter::completed() {
   return out;
 }
 
-void CubeWriter::write_chunk(const engine::ChunkResult& r) {
-  const std::string payload = serialise(r);
+void CubeWriter::write_chunk(const engine::ChunkResult& r) { write_encoded(r.spec.id, encode_chunk(r)); }
+
+void CubeWriter::write_encoded(std::size_t chunk, const std::string& payload) {
+  if (chunk >= offsets_.size()) throw CubeError("internal: chunk id out of range");
   std::string record;
   record.reserve(record_header_size + payload.size());
   put(record, record_magic);
   put(record, std::uint32_t{0});
-  put(record, static_cast<std::uint64_t>(r.spec.id));
+  put(record, static_cast<std::uint64_t>(chunk));
   put(record, static_cast<std::uint64_t>(payload.size()));
   put(record, checksum(payload.data(), payload.size()));
   record += payload;
   write_all(fd_, record.data(), record.size(), end_, journal_path_);
-  offsets_[r.spec.id] = static_cast<std::int64_t>(end_);
+  offsets_[chunk] = static_cast<std::int64_t>(end_);
   end_ += record.size();
 }
 
@@ -357,7 +371,7 @@ engine::ChunkResult CubeWriter::read_record(std::size_t chunk) const {
   engine::ChunkResult r;
   r.spec = plan_.chunks[chunk];
   r.combos = engine::combo_count(scenario_);
-  deserialise(buf.data(), size, r);
+  decode_chunk(buf.data(), size, r);
   return r;
 }
 
@@ -382,7 +396,8 @@ void CubeWriter::write_grid_stats(engine::Source source, std::size_t model, std:
 }
 
 void CubeWriter::finish() {
-  assemble();
+  assemble_cube(temp_path_,
+                {scenario_, plan_, shard_, [this](std::size_t id) { return read_record(id); }, split_stats_});
   ::close(fd_);
   fd_ = -1;
   std::error_code ec;
@@ -391,9 +406,10 @@ void CubeWriter::finish() {
   fs::remove(journal_path_, ec);
 }
 
-void CubeWriter::assemble() {
-  const engine::Scenario& s = scenario_;
-  File file = File::create(temp_path_);
+void assemble_cube(const std::string& path, const CubeContents& in) {
+  const engine::Scenario& s = in.scenario;
+  const engine::Plan& plan_ = in.plan;
+  File file = File::create(path);
   const hid_t root = file.id();
   set_attr(root, "format", std::string(cube_format_name));
   set_attr(root, "format_version", std::int64_t{cube_format_version});
@@ -403,7 +419,7 @@ void CubeWriter::assemble() {
   set_attr(root, "scenario_sha256", s.sha256);
   set_attr(root, "seed", static_cast<std::int64_t>(s.seed));
   set_attr(root, "created_utc", utc_now());
-  set_attr(root, "shard", std::string("all"));
+  set_attr(root, "shard", in.shard ? in.shard->spec.label() : std::string("all"));
   set_attr(root, "complete", std::int64_t{0});
 
   Handle axes = create_group(root, "axes");
@@ -488,8 +504,12 @@ void CubeWriter::assemble() {
       mc_stats.push_back(make_stat("mc_" + std::string(engine::stat_names[k])));
 
   // The chunks, one at a time in plan order.
+  std::vector<std::uint8_t> done(plan_.chunks.size(), in.shard ? 0 : 1);
+  if (in.shard)
+    for (std::size_t id : in.shard->chunks) done.at(id) = 1;
   for (const auto& c : plan_.chunks) {
-    const engine::ChunkResult r = read_record(c.id);
+    if (!done[c.id]) continue;
+    const engine::ChunkResult r = in.load(c.id);
     const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin, c.p_begin};
     const std::vector<hsize_t> count = {1, S, L, M, c.n_count, c.p_count};
     const std::vector<hsize_t> sstart = {c.model, 0, 0, 0, c.n_begin};
@@ -515,7 +535,7 @@ void CubeWriter::assemble() {
   }
   // Grid statistics of rows split over chunks.
   const std::size_t combos = engine::combo_count(s);
-  for (const auto& [key, values] : split_stats_) {
+  for (const auto& [key, values] : in.split_stats) {
     const std::size_t model = key.second / s.n.size(), n_begin = key.second % s.n.size();
     const std::size_t count = values.size() / (engine::grid_stat_count * combos);
     auto& target = key.first == 0 ? stats : mc_stats;
@@ -526,7 +546,10 @@ void CubeWriter::assemble() {
   Handle pg = create_group(root, "progress");
   set_attr(pg.get(), "n_block", static_cast<std::int64_t>(plan_.n_block));
   set_attr(pg.get(), "p_block", static_cast<std::int64_t>(plan_.p_block));
-  write_vector(pg.get(), "done", std::vector<std::uint8_t>(plan_.chunks.size(), 1));
+  write_vector(pg.get(), "done", done);
+  if (in.shard)
+    write_vector(pg.get(), "shard_chunks",
+                 std::vector<std::int64_t>(in.shard->chunks.begin(), in.shard->chunks.end()));
   set_attr(root, "complete", std::int64_t{1});
   file.flush();
 }
@@ -549,6 +572,7 @@ CubeReader::CubeReader(const std::string& path) : path_(path) {
       throw InputError(path, fmt::format("has cube format version {}; this covergrid reads version {}",
                                          version, cube_format_version));
     complete_ = get_attr_int(root, "complete") != 0;
+    if (has_attr(root, "shard")) shard_ = get_attr_string(root, "shard");
     models = read_strings(root, "/axes/model");
     sides = read_strings(root, "/axes/side");
     levels = read_doubles(root, "/axes/level");

@@ -126,7 +126,7 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
 }  // namespace
 
 engine::Scenario load_scenario_text(std::string_view text, const std::string& source_name,
-                                    const std::string& base_dir) {
+                                    const std::string& base_dir, bool check_output_folders) {
   const Context ctx(source_name);
   toml::table root;
   try {
@@ -353,7 +353,7 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
     ctx.fail(at,
              fmt::format("[output] {} = \"{}\": the folder {} does not exist", key, path, parent.string()));
   };
-  if (!base_dir.empty() || fs::path(s.cube_path).has_parent_path()) {
+  if (check_output_folders && (!base_dir.empty() || fs::path(s.cube_path).has_parent_path())) {
     check_folder(s.cube_path, "cube");
     check_folder(s.tables_prefix, "tables");
   }

@@ -15,6 +15,7 @@
 #include "covergrid/engine/sampler.hpp"
 #include "covergrid/engine/run.hpp"
 #include "covergrid/engine/sample_size.hpp"
+#include "covergrid/engine/shard.hpp"
 #include "covergrid/methods/registry.hpp"
 #include "covergrid/output/cube.hpp"
 #include "covergrid/scenarios/loader.hpp"
@@ -332,6 +333,44 @@ void plan_search() {
       seconds(t0, t1), seconds(t1, t2), seconds(t0, t1) / seconds(t1, t2), r.first.n);
 }
 
+/// Measured time of single chunks (one thread, tables built inside) against
+/// the shard cut's cost estimate, both relative to the chunk at n = 1000.
+void shard_cost() {
+  fmt::print("shard-cost: one chunk (one n row x 2048 p, 5 methods, one level) timed against chunk_cost\n");
+  for (const char* mc : {"exact = true\nreplicates = 0", "exact = false\nreplicates = 1000",
+                         "exact = true\nreplicates = 1000"}) {
+    const auto s = covergrid::scenarios::load_scenario_text(
+        fmt::format(
+            "[grid]\nn = [10, 100, 1000, 10000, 100000]\np = {{ from = 0.001, to = 0.999, count = 2048 "
+            "}}\nlevels = 0.95\n[evaluate]\n{}\n",
+            mc) +
+            five_methods,
+        "bench.toml", "");
+    const auto plan = e::make_plan(s);
+    std::vector<double> time, cost;
+    for (const auto& c : plan.chunks) {
+      int reps = 0;
+      const double t0 = now();
+      double t = 0;
+      do {
+        const auto r = e::compute_chunk(s, c);
+        if (r.combos == 0) fmt::print("impossible\n");
+        ++reps;
+        t = now() - t0;
+      } while (t < 0.3);
+      time.push_back(t / reps);
+      cost.push_back(e::chunk_cost(s, c));
+    }
+    std::string line;
+    for (std::size_t i = 0; i < plan.chunks.size(); ++i)
+      line += fmt::format("  n = {}: {:.1f} ms/chunk, time {:.2f}x vs cost {:.2f}x\n", s.n[i], 1e3 * time[i],
+                          time[i] / time[2], cost[i] / cost[2]);
+    std::string label = mc;
+    label.replace(label.find('\n'), 1, ", ");
+    fmt::print("  [{}]\n{}", label, line);
+  }
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -344,5 +383,6 @@ int main(int argc, char** argv) {
   if (what == "all" || what == "mc-costs") mc_costs();
   if (what == "all" || what == "mc-threads") mc_threads();
   if (what == "all" || what == "plan") plan_search();
+  if (what == "all" || what == "shard-cost") shard_cost();
   return 0;
 }

@@ -1,6 +1,7 @@
 // The run command end to end with Monte Carlo: byte-identical datasets for
 // 1 and 2 threads; a run killed with SIGKILL mid-way and resumed ends with the
 // same cube; SIGINT stops cleanly at a chunk boundary, resumably.
+#include "e2e.hpp"
 #include "support.hpp"
 
 #include "covergrid/output/hdf5.hpp"
@@ -20,7 +21,7 @@
 
 namespace fs = std::filesystem;
 namespace o = covergrid::output;
-using covergrid::test::ScratchDir;
+using namespace covergrid::test;
 
 namespace {
 
@@ -47,88 +48,6 @@ tables = ""
 )";
 
 void write_scenario(const fs::path& dir) { std::ofstream(dir / "r.toml") << scenario_text; }
-
-/// Starts the executable; returns its pid.
-pid_t spawn(const fs::path& dir, const std::vector<std::string>& args) {
-  const pid_t pid = fork();
-  if (pid == 0) {
-    if (chdir(dir.c_str()) != 0) _exit(126);
-    std::vector<char*> argv;
-    argv.push_back(const_cast<char*>(COVERGRID_EXE));
-    for (const auto& a : args) argv.push_back(const_cast<char*>(a.c_str()));
-    argv.push_back(nullptr);
-    freopen("/dev/null", "w", stdout);
-    freopen((dir / "stderr.txt").c_str(), "w", stderr);
-    execv(COVERGRID_EXE, argv.data());
-    _exit(127);
-  }
-  return pid;
-}
-
-int wait_status(pid_t pid) {
-  int status = 0;
-  waitpid(pid, &status, 0);
-  return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
-}
-
-int run(const fs::path& dir, const std::vector<std::string>& args) { return wait_status(spawn(dir, args)); }
-
-/// Waits (up to a minute) until `file` exists and holds more than `bytes`:
-/// the run is then part-way through its chunks.
-void wait_for_bytes(const fs::path& file, std::uintmax_t bytes) {
-  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
-  while (std::chrono::steady_clock::now() < deadline) {
-    std::error_code ec;
-    const auto size = fs::file_size(file, ec);
-    if (!ec && size > bytes) return;
-    std::this_thread::sleep_for(std::chrono::milliseconds(5));
-  }
-}
-
-/// Every dataset path in a file.
-std::vector<std::string> datasets(hid_t file) {
-  std::vector<std::string> out;
-  H5Lvisit(
-      file, H5_INDEX_NAME, H5_ITER_INC,
-      [](hid_t g, const char* name, const H5L_info_t*, void* data) -> herr_t {
-        H5O_info_t info;
-        if (H5Oget_info_by_name2(g, name, &info, H5O_INFO_BASIC, H5P_DEFAULT) >= 0 &&
-            info.type == H5O_TYPE_DATASET)
-          static_cast<std::vector<std::string>*>(data)->push_back(name);
-        return 0;
-      },
-      &out);
-  return out;
-}
-
-/// The raw bytes of a numeric dataset, or its strings joined.
-std::string contents(hid_t file, const std::string& name) {
-  o::Handle d = o::open_dataset(file, name);
-  o::Handle type(H5Dget_type(d.get()), H5Tclose);
-  if (H5Tget_class(type.get()) == H5T_STRING) {
-    std::string all;
-    for (const auto& s : o::read_strings(file, name)) all += s + '\n';
-    return all;
-  }
-  o::Handle native(H5Tget_native_type(type.get(), H5T_DIR_ASCEND), H5Tclose);
-  std::size_t count = 1;
-  for (auto v : o::shape(d.get())) count *= v;
-  std::string bytes(count * H5Tget_size(native.get()), '\0');
-  if (count) H5Dread(d.get(), native.get(), H5S_ALL, H5S_ALL, H5P_DEFAULT, bytes.data());
-  return bytes;
-}
-
-/// Checks that two cubes hold the same datasets with identical bytes.
-void same_datasets(const std::string& a, const std::string& b) {
-  o::File fa = o::File::open(a, false), fb = o::File::open(b, false);
-  const auto names = datasets(fa.id());
-  CHECK(names == datasets(fb.id()));
-  CHECK(names.size() > 30);
-  for (const auto& name : names) {
-    INFO(name);
-    CHECK(contents(fa.id(), name) == contents(fb.id(), name));
-  }
-}
 
 }  // namespace
 
@@ -171,4 +90,30 @@ TEST_CASE("SIGINT stops at a chunk boundary and the run resumes", "[cli][e2e][re
   CHECK(fs::exists(journal));
   CHECK(run(dir.path(), {"run", "r.toml", "--quiet"}) == 0);
   CHECK(fs::exists(dir.path() / "r.h5"));
+}
+
+TEST_CASE("a SIGKILLed shard resumes, and its merge equals a single run", "[cli][e2e][shard][resume][slow]") {
+  ScratchDir single("shard-single"), shards("shard-killed");
+  write_scenario(single.path());
+  write_scenario(shards.path());
+  REQUIRE(run(single.path(), {"run", "r.toml", "--quiet"}) == 0);
+  const pid_t pid = spawn(shards.path(), {"run", "r.toml", "--shard", "1/2", "--threads", "2", "--quiet"});
+  const fs::path journal = shards.path() / "r.shard-1-of-2.h5.journal";
+  wait_for_bytes(journal, 10'000'000);
+  kill(pid, SIGKILL);
+  CHECK(wait_status(pid) == 128 + SIGKILL);
+  REQUIRE(fs::exists(journal));
+  CHECK_FALSE(fs::exists(shards.path() / "r.shard-1-of-2.h5"));
+  // Merging now is refused: shard 1/2 is not there.
+  CHECK(run(shards.path(), {"run", "r.toml", "--shard", "2/2", "--quiet"}) == 0);
+  CHECK(run(shards.path(), {"merge", "r.shard-2-of-2.h5", "-o", "r.h5"}) == 2);
+  CHECK_FALSE(fs::exists(shards.path() / "r.h5"));
+  // Running the same shard again resumes it from its journal.
+  REQUIRE(run(shards.path(), {"run", "r.toml", "--shard", "1/2"}) == 0);
+  std::ifstream err(shards.path() / "stderr.txt");
+  const std::string text((std::istreambuf_iterator<char>(err)), {});
+  CHECK(text.find("resuming the unfinished run in r.shard-1-of-2.h5.journal") != std::string::npos);
+  CHECK_FALSE(fs::exists(journal));
+  REQUIRE(run(shards.path(), {"merge", "r.shard-1-of-2.h5", "r.shard-2-of-2.h5", "-o", "r.h5"}) == 0);
+  same_datasets(single.file("r.h5"), shards.file("r.h5"));
 }

@@ -37,6 +37,13 @@ int cmd_inspect(const std::string& path, std::ostream& out) {
     out << "  the cube is not complete: its summaries are partial\n";
     return exit_ok;
   }
+  if (cube.is_shard()) {
+    out << fmt::format(
+        "  shard {} of a scenario: it holds only its chunks; join the shards with\n"
+        "  covergrid merge for the whole cube and its summaries\n",
+        cube.shard());
+    return exit_ok;
+  }
   out << output::headline(cube);
   return exit_ok;
 }
@@ -52,6 +59,9 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
   const std::string label_a = pair.substr(0, comma), label_b = pair.substr(comma + 1);
   output::CubeReader cube(path);
   if (!cube.complete()) throw InputError(path, "is not complete");
+  if (cube.is_shard())
+    throw InputError(path,
+                     "is shard " + cube.shard() + " of a scenario; merge the shards first (covergrid merge)");
   if (!cube.has_mc())
     throw InputError(path, "holds no Monte Carlo results (the scenario had replicates = 0)");
   const engine::Scenario s =

@@ -2,6 +2,7 @@
 // on stderr and a clean stop on SIGINT/SIGTERM.
 #include "commands.hpp"
 #include "covergrid/engine/run.hpp"
+#include "covergrid/engine/shard.hpp"
 #include "covergrid/output/cube.hpp"
 #include "covergrid/output/tables.hpp"
 #include "covergrid/scenarios/loader.hpp"
@@ -9,10 +10,12 @@
 #include <fmt/format.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <atomic>
 #include <chrono>
 #include <csignal>
 #include <memory>
+#include <optional>
 
 namespace covergrid::cli {
 
@@ -72,19 +75,69 @@ class Progress {
   std::size_t resumed_ = 0;  // cells already done when the run started
 };
 
-int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, std::ostream& out,
-            std::ostream& err) {
+struct RunArgs {
+  std::string scenario_file;
+  int threads = 0;
+  bool quiet = false, overwrite = false, dry_run = false;
+  std::string shard;  // "K/N" or empty
+};
+
+/// --dry-run: the plan, and the shard's part of it, without computing.
+int print_plan(const engine::Scenario& scenario, const engine::Plan& plan,
+               const engine::ShardSelection* shard, std::ostream& out) {
+  std::size_t cells = 0;
+  double total = 0, part = 0;
+  for (const auto& c : plan.chunks) {
+    cells += c.n_count * c.p_count;
+    total += engine::chunk_cost(scenario, c);
+  }
+  out << fmt::format("{}\n  cells: {} (model {} x n {} x p {}), each for {} side/level/method combinations\n",
+                     scenario.title.empty() ? scenario.source_name : scenario.title, cells,
+                     scenario.models.size(), scenario.n.size(), scenario.p.size(),
+                     engine::combo_count(scenario));
+  out << fmt::format("  chunks: {} of {} n x {} p (so --shard K/N takes N from 1 to {})\n",
+                     plan.chunks.size(), plan.n_block, plan.p_block, plan.chunks.size());
+  if (shard) {
+    std::size_t shard_cells = 0;
+    for (std::size_t id : shard->chunks) {
+      shard_cells += plan.chunks[id].n_count * plan.chunks[id].p_count;
+      part += engine::chunk_cost(scenario, plan.chunks[id]);
+    }
+    out << fmt::format("  shard {}: chunks {}..{} ({} chunks, {} cells, {:.1f}% of the estimated cost)\n",
+                       shard->spec.label(), shard->chunks.front(), shard->chunks.back(), shard->chunks.size(),
+                       shard_cells, 100 * part / total);
+    out << fmt::format("  shard cube: {}\n", scenario.cube_path);
+  } else {
+    out << fmt::format("  cube: {}\n", scenario.cube_path);
+  }
+  return exit_ok;
+}
+
+int cmd_run(const RunArgs& a, std::ostream& out, std::ostream& err) {
+  const bool quiet = a.quiet;
+  // The option is checked before anything is read or written.
+  std::optional<engine::ShardSpec> spec;
+  if (!a.shard.empty()) spec = engine::parse_shard(a.shard);
   engine::Scenario scenario =
-      file.empty() ? scenarios::load_scenario_text(scenarios::bundled_demo_text(), "<bundled demo>", "")
-                   : scenarios::load_scenario_file(file);
-  if (file.empty() && !quiet) err << "covergrid: no scenario given; running the bundled demo\n";
-  const output::OutputState state = output::inspect_output(scenario, overwrite);
+      a.scenario_file.empty()
+          ? scenarios::load_scenario_text(scenarios::bundled_demo_text(), "<bundled demo>", "")
+          : scenarios::load_scenario_file(a.scenario_file);
+  if (a.scenario_file.empty() && !quiet) err << "covergrid: no scenario given; running the bundled demo\n";
+  const engine::Plan plan = engine::make_plan(scenario);
+  std::optional<engine::ShardSelection> shard;
+  if (spec) {
+    shard = engine::ShardSelection{*spec, engine::shard_chunks(scenario, plan, *spec)};
+    scenario.cube_path = engine::shard_cube_path(scenario.cube_path, *spec);
+  }
+  if (a.dry_run) return print_plan(scenario, plan, shard ? &*shard : nullptr, out);
+  const output::OutputState state =
+      output::inspect_output(scenario, a.overwrite, shard ? shard->spec.label() : "all");
   if (state == output::OutputState::up_to_date) {
     if (!quiet)
       err << fmt::format("covergrid: {} is already complete for this scenario\n", scenario.cube_path);
   } else {
-    const engine::Plan plan = engine::make_plan(scenario);
-    output::CubeWriter writer(scenario, plan, state == output::OutputState::resumed);
+    output::CubeWriter writer(scenario, plan, state == output::OutputState::resumed,
+                              shard ? &*shard : nullptr);
     if (state == output::OutputState::resumed && !quiet)
       err << fmt::format("covergrid: resuming the unfinished run in {}\n",
                          output::journal_path(scenario.cube_path));
@@ -92,10 +145,12 @@ int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, st
     {
       const auto done = writer.completed();
       for (const auto& c : plan.chunks)
-        if (done[c.id]) progress.resumed_ += c.n_count * c.p_count;
+        if (done[c.id] && (!shard || std::binary_search(shard->chunks.begin(), shard->chunks.end(), c.id)))
+          progress.resumed_ += c.n_count * c.p_count;
     }
     engine::RunOptions options;
-    options.threads = threads;
+    options.threads = a.threads;
+    if (shard) options.only_chunks = &shard->chunks;
     options.stop = &stop_requested;
     options.progress = [&](std::size_t d, std::size_t t) { progress.update(d, t); };
     stop_requested = false;
@@ -120,20 +175,21 @@ int cmd_run(const std::string& file, int threads, bool quiet, bool overwrite, st
       return exit_internal;
     }
   }
+  const std::string title = scenario.title.empty() ? scenario.source_name : scenario.title;
+  if (shard) {
+    out << fmt::format("{}\nshard {}: chunks {}..{} of {}\ncube: {}\n", title, shard->spec.label(),
+                       shard->chunks.front(), shard->chunks.back(), plan.chunks.size(), scenario.cube_path);
+    out << fmt::format("when all {} shards are done: covergrid merge SHARD-CUBES... -o CUBE.h5\n",
+                       shard->spec.count);
+    return exit_ok;
+  }
   output::CubeReader cube(scenario.cube_path);
-  out << fmt::format("{}\ncube: {}\n", scenario.title.empty() ? scenario.source_name : scenario.title,
-                     scenario.cube_path);
+  out << fmt::format("{}\ncube: {}\n", title, scenario.cube_path);
   if (!scenario.tables_prefix.empty())
     for (const auto& p : output::write_tables(cube, scenario.tables_prefix)) out << "table: " << p << '\n';
   out << output::headline(cube);
   return exit_ok;
 }
-
-struct RunArgs {
-  std::string scenario_file;
-  int threads = 0;
-  bool quiet = false, overwrite = false;
-};
 
 }  // namespace
 
@@ -146,9 +202,13 @@ Command add_run_command(CLI::App& app) {
   run->add_flag("--quiet", a->quiet, "no progress display");
   run->add_flag("--overwrite", a->overwrite,
                 "replace an existing cube or unfinished run of another scenario");
-  return {run, [a](std::ostream& out, std::ostream& err) {
-            return cmd_run(a->scenario_file, a->threads, a->quiet, a->overwrite, out, err);
-          }};
+  run->add_option(
+      "--shard", a->shard,
+      "compute only shard K of N (K/N, 1 <= K <= N <= chunks) into NAME.shard-K-of-N.h5 beside the "
+      "cube; join the shards with covergrid merge");
+  run->add_flag("--dry-run", a->dry_run,
+                "print the plan (cells, chunks, the shard's part) and compute nothing");
+  return {run, [a](std::ostream& out, std::ostream& err) { return cmd_run(*a, out, err); }};
 }
 
 }  // namespace covergrid::cli

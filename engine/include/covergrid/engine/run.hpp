@@ -8,6 +8,7 @@
 #include <cmath>
 #include <cstddef>
 #include <functional>
+#include <vector>
 
 namespace covergrid::engine {
 
@@ -22,6 +23,10 @@ struct RunOptions {
   /// Cells per chunk for the plan (make_plan's target). Every run of one
   /// output must use the same value; only tests change it.
   std::size_t chunk_cells = plan_target_cells;
+  /// When set, only these chunk ids are computed (a shard). The grid
+  /// statistics of rows split over several chunks need every chunk, so such a
+  /// run leaves them to `merge` and finishes the sink without them.
+  const std::vector<std::size_t>* only_chunks = nullptr;
 };
 
 struct RunReport {
@@ -34,6 +39,12 @@ struct RunReport {
 /// Runs every chunk not yet complete in `sink`, then the summaries, then
 /// sink.finish(). On interruption it checkpoints and returns without finish().
 RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options = {});
+
+/// What follows the chunks of a whole-scenario run: the grid statistics of
+/// rows split over several chunks (read back through sink.read_rows, every
+/// chunk must be complete in the sink), then sink.finish(). run_scenario
+/// calls it; merge calls it on a sink that replays shard cubes.
+void finish_scenario(const Scenario& scenario, const Plan& plan, ResultSink& sink);
 
 /// Computes one chunk (exposed for tests and benchmarks).
 ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk);

@@ -7,13 +7,19 @@
 /// /axes/{model,side,level,method,n,p} dimension scales; /methods/<label>
 /// groups; /exact/<metric> float64 [model, side, level, method, n, p];
 /// /summary/<stat> float64 [model, side, level, method, n]; /progress/done
-/// uint8 [chunk] with attributes n_block and p_block.
+/// uint8 [chunk] with attributes n_block and p_block. A shard cube (run
+/// --shard K/N) has the same layout with only its chunks written: shard =
+/// "K/N", /progress/done 1 for its chunks, /progress/shard_chunks (int64, its
+/// chunk ids), complete = 1 once every one of them is in; the grid statistics
+/// of rows split over several chunks are left NaN (merge computes them).
 #include "covergrid/engine/plan.hpp"
 #include "covergrid/engine/scenario.hpp"
+#include "covergrid/engine/shard.hpp"
 #include "covergrid/engine/sink.hpp"
 #include "covergrid/output/hdf5.hpp"
 
 #include <array>
+#include <functional>
 #include <map>
 #include <string>
 #include <vector>
@@ -39,22 +45,49 @@ enum class OutputState { fresh, resumed, up_to_date };
 /// Decides, before anything is written, what a run of `scenario` into its cube
 /// path will do: start fresh, resume an unfinished run of the same scenario,
 /// or find a complete cube of it. Throws InputError (exit 2) for a cube or an
-/// unfinished run of a different scenario, or a foreign file in the way,
-/// unless `overwrite`.
-OutputState inspect_output(const engine::Scenario& scenario, bool overwrite);
+/// unfinished run of a different scenario, a cube of another shard (`shard`
+/// is "all" or "K/N"), or a foreign file in the way, unless `overwrite`.
+OutputState inspect_output(const engine::Scenario& scenario, bool overwrite,
+                           const std::string& shard = "all");
+
+/// A chunk's results as the bytes of one journal record, and back (the
+/// caller sets r.spec and r.combos first). Used by the MPI ranks to ship
+/// results to the rank that writes the journal.
+std::string encode_chunk(const engine::ChunkResult& r);
+void decode_chunk(const char* data, std::size_t size, engine::ChunkResult& r);
+
+/// Grid statistics of split rows, [source][model * N + n][stat * combos + combo].
+using SplitStats = std::map<std::pair<int, std::size_t>, std::vector<double>>;
+
+/// Everything a cube is assembled from: the chunks come one at a time, in
+/// plan order, from `load` (the journal of a run, or shard cubes in merge).
+struct CubeContents {
+  const engine::Scenario& scenario;
+  const engine::Plan& plan;
+  const engine::ShardSelection* shard;  // nullptr: the whole scenario
+  std::function<engine::ChunkResult(std::size_t chunk)> load;
+  const SplitStats& split_stats;
+};
+
+/// Writes the HDF5 cube to `path` (truncating it); complete = 1 at the end.
+void assemble_cube(const std::string& path, const CubeContents& contents);
 
 /// The ResultSink that writes the journal and, on finish(), the cube.
 class CubeWriter final : public engine::ResultSink {
  public:
   /// Opens (resume: validating the journal and dropping a torn tail) or
-  /// creates the journal; call inspect_output() first.
-  CubeWriter(const engine::Scenario& scenario, const engine::Plan& plan, bool resume);
+  /// creates the journal; call inspect_output() first. With `shard`, the cube
+  /// written on finish() is that shard's (only its chunks).
+  CubeWriter(const engine::Scenario& scenario, const engine::Plan& plan, bool resume,
+             const engine::ShardSelection* shard = nullptr);
   ~CubeWriter() override;
   CubeWriter(const CubeWriter&) = delete;
   CubeWriter& operator=(const CubeWriter&) = delete;
 
   std::vector<char> completed() override;
   void write_chunk(const engine::ChunkResult& result) override;
+  /// Appends an already encoded chunk (encode_chunk) to the journal.
+  void write_encoded(std::size_t chunk, const std::string& payload);
   void checkpoint() override;
   void read_rows(engine::Source source, std::size_t metric, std::size_t model, std::size_t n_begin,
                  std::size_t n_count, std::size_t p_begin, std::size_t p_count,
@@ -65,15 +98,14 @@ class CubeWriter final : public engine::ResultSink {
 
  private:
   engine::ChunkResult read_record(std::size_t chunk) const;
-  void assemble();
   const engine::Scenario& scenario_;
   const engine::Plan& plan_;
+  const engine::ShardSelection* shard_;
   std::string final_path_, journal_path_, temp_path_;
   int fd_ = -1;
   std::vector<std::int64_t> offsets_;  // record offset per chunk, -1 = not written
   std::uint64_t end_ = 0;              // end of the last valid record
-  /// Grid statistics of split rows, [source][model * N + n][stat * combos + combo].
-  std::map<std::pair<int, std::size_t>, std::vector<double>> split_stats_;
+  SplitStats split_stats_;
 };
 
 /// A cube opened for reading; validates the format on open (InputError if the
@@ -85,6 +117,9 @@ class CubeReader {
   const std::string& path() const { return path_; }
   std::string attr(const std::string& name) const;
   bool complete() const { return complete_; }
+  /// "all" for a whole cube, "K/N" for a shard cube (run --shard).
+  const std::string& shard() const { return shard_; }
+  bool is_shard() const { return shard_ != "all"; }
 
   std::vector<std::string> models, sides, methods;
   std::vector<double> levels, p;
@@ -116,6 +151,7 @@ class CubeReader {
   std::string path_;
   File file_;
   bool complete_ = false;
+  std::string shard_ = "all";
 };
 
 }  // namespace covergrid::output

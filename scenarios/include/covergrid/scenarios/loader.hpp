@@ -15,9 +15,12 @@ namespace covergrid::scenarios {
 engine::Scenario load_scenario_file(const std::string& path);
 
 /// Validates scenario text; `source_name` is used in messages and `base_dir`
-/// to resolve relative output paths ("" = current directory).
+/// to resolve relative output paths ("" = current directory). With
+/// `check_output_folders` false the output folders need not exist (a
+/// scenario read back from a cube on another machine, whose outputs the
+/// caller replaces).
 engine::Scenario load_scenario_text(std::string_view text, const std::string& source_name,
-                                    const std::string& base_dir);
+                                    const std::string& base_dir, bool check_output_folders = true);
 
 /// The bundled demo scenario (scenarios/bundled/demo.toml, compiled in).
 std::string_view bundled_demo_text();
