@@ -23,6 +23,7 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   commands.push_back(add_intervals_command(app));
   commands.push_back(add_methods_command(app));
   commands.push_back(add_inspect_command(app));
+  commands.push_back(add_report_command(app));
 
   if (!args.empty() && !args[0].empty() && args[0][0] != '-') {
     std::string names;

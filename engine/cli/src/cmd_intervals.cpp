@@ -81,7 +81,8 @@ Command add_intervals_command(CLI::App& app) {
   intervals->add_option("N", a->n, "trials")->required();
   intervals->add_option("--level", a->level, "confidence level in (0, 1) (default 0.95)");
   intervals->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
-  intervals->add_option("--method", a->methods, "method id, optionally id:key=value,... (repeatable; default all)");
+  intervals->add_option("--method", a->methods,
+                        "method id, optionally id:key=value,... (repeatable; default all)");
   intervals->add_flag("--csv", a->csv, "CSV output with raw (unclipped) limits");
   return {intervals, [a](std::ostream& out, std::ostream&) {
             return cmd_intervals(a->x, a->n, a->level, a->side, a->methods, a->csv, out);

@@ -26,7 +26,8 @@ int cmd_methods(std::ostream& out) {
 }  // namespace
 
 Command add_methods_command(CLI::App& app) {
-  auto* methods = app.add_subcommand("methods", "The catalog of interval methods: ids, parameters, references");
+  auto* methods =
+      app.add_subcommand("methods", "The catalog of interval methods: ids, parameters, references");
   return {methods, [](std::ostream& out, std::ostream&) { return cmd_methods(out); }};
 }
 

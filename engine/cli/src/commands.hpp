@@ -24,6 +24,7 @@ Command add_run_command(CLI::App& app);
 Command add_intervals_command(CLI::App& app);
 Command add_methods_command(CLI::App& app);
 Command add_inspect_command(CLI::App& app);
+Command add_report_command(CLI::App& app);
 
 /// Parses "id" or "id:key=value,key=value" into a method instance; errors
 /// name `option` (e.g. "--method").
