@@ -207,6 +207,8 @@ CellAxis cell_axis(const std::vector<double>& values, svg::Scale scale, double f
   const double inner = span / (1 + (u1 + 1 - u2) / 2);
   c.axis.from = from + u1 * inner / 2;
   c.axis.to = c.axis.from + inner;
+  c.axis.pad_lo = std::fabs(c.axis.from - from);
+  c.axis.pad_hi = std::fabs(to - c.axis.to);
   c.edges.resize(count + 1);
   c.edges[0] = from;
   c.edges[count] = to;
@@ -309,6 +311,7 @@ svg .frame { fill: none; stroke: #555; stroke-width: 1; }
 svg .tick-label { font-size: 10px; fill: #333; }
 svg .axis-title { font-size: 11.5px; fill: #111; }
 svg .panel-title { font-size: 11px; font-weight: 600; fill: #111; }
+svg .row-title { font-size: 12.5px; font-weight: 700; fill: #1b4f8f; }
 svg .nominal { stroke: #111; stroke-width: 1; stroke-dasharray: 5 3; }
 svg .series { stroke-width: 1.5; stroke-linejoin: round; }
 svg .band { stroke: none; opacity: 0.28; }
@@ -508,19 +511,20 @@ std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_
   const double y_lo = std::max(0.0, level - 4 * alpha);
   const std::size_t cols = n_index_.size();
   const double panel_w = std::min(std::floor(page_width / static_cast<double>(cols)), 300.0);
-  const double panel_h = 132;
+  // Each row: the method's label across the page, then one panel per n titled with its n.
+  const double panel_h = 146;
   const double width = panel_w * static_cast<double>(cols);
   const double height = panel_h * static_cast<double>(present.size()) + 8;
   Canvas svg(width, height, "Coverage against p, " + combo_title(c), {{"class", "coverage-panels"}});
   for (std::size_t r = 0; r < present.size(); ++r) {
     const std::size_t m = present[r];
+    svg.text(6, panel_h * static_cast<double>(r) + 13, cube_.methods[m], {{"class", "row-title"}});
     for (std::size_t k = 0; k < cols; ++k) {
       const std::size_t ni = n_index_[k];
-      const double left = panel_w * static_cast<double>(k), top = panel_h * static_cast<double>(r);
+      const double left = panel_w * static_cast<double>(k), top = panel_h * static_cast<double>(r) + 14;
       const Axis x{cube_.p.front(), cube_.p.back(), left + 44, left + panel_w - 10, p_scale_};
-      const Axis y{y_lo, 1.0, top + panel_h - 34, top + 22, svg::Scale::linear};
-      svg.text(left + 6, top + 12, fmt::format("{}, n = {}", cube_.methods[m], cube_.n[ni]),
-               {{"class", "panel-title"}});
+      const Axis y{y_lo, 1.0, top + panel_h - 48, top + 22, svg::Scale::linear};
+      svg.text(left + 44, top + 14, fmt::format("n = {}", cube_.n[ni]), {{"class", "panel-title"}});
       const bool bottom = r + 1 == present.size();
       svg.axes(x, y, bottom ? "p" : "", k == 0 ? "coverage" : "");
       const auto values = row("coverage", c, m, ni);
@@ -553,7 +557,7 @@ std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_
         svg.polygon(band_x, band_y, {{"class", "band"}, {"fill", line_colours[m % line_colours.size()]}});
         data.emplace_back("data-se", svg::exact_list(se_drawn));
       }
-      for (const auto& a : line_style(m)) data.push_back(a);
+      data.emplace_back("stroke", line_colours[m % line_colours.size()]);  // one curve a panel: no dashes
       svg.polyline(px_x, px_y, data);
       if (keep.size() == 1)
         svg.element("circle", {{"cx", px(px_x[0])},

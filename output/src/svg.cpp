@@ -168,6 +168,12 @@ double Axis::operator()(double v) const {
   return from + (transform(scale, v) - a) / (b - a) * (to - from);
 }
 
+std::pair<double, double> Axis::extent() const {
+  const double dir = to >= from ? 1 : -1;
+  const double a = from - dir * pad_lo, b = to + dir * pad_hi;
+  return {std::min(a, b), std::max(a, b)};
+}
+
 std::vector<Tick> Axis::ticks(double min_gap) const {
   std::vector<Tick> out;
   const double span = std::fabs(to - from);
@@ -176,7 +182,16 @@ std::vector<Tick> Axis::ticks(double min_gap) const {
     return out;
   }
   if (scale == Scale::linear) {
-    const double step = nice_step((hi - lo) / std::max(1.0, std::floor(span / min_gap)));
+    double step = nice_step((hi - lo) / std::max(1.0, std::floor(span / min_gap)));
+    // A short axis whose nice step leaves fewer than two ticks inside takes
+    // the next smaller step (e.g. 0.5 -> 0.2 on 0.0005..0.9995), if its ticks
+    // stay 20 pixels apart.
+    const auto inside = [&](double st) { return std::floor(hi / st + 1e-9) - std::ceil(lo / st - 1e-9) + 1; };
+    if (inside(step) < 2) {
+      const double mantissa = step / std::pow(10.0, std::floor(std::log10(step) + 1e-9));
+      const double smaller = mantissa > 3 ? step * 0.4 : step / 2;  // 5 -> 2, 2 -> 1, 1 -> 0.5
+      if (smaller * span / (hi - lo) >= 20) step = smaller;
+    }
     const int decimals = static_cast<int>(std::ceil(-std::log10(step) - 1e-9));
     const double first = std::ceil(lo / step - 1e-9);
     for (double k = first; k * step <= hi * (1 + 1e-12) + 1e-12 * step; ++k)
@@ -298,8 +313,8 @@ void Canvas::polygon(const std::vector<double>& x, const std::vector<double>& y,
 
 void Canvas::axes(const Axis& x, const Axis& y, std::string_view x_title, std::string_view y_title,
                   bool grid_lines) {
-  const double left = std::min(x.from, x.to), right = std::max(x.from, x.to);
-  const double top = std::min(y.from, y.to), bottom = std::max(y.from, y.to);
+  const auto [left, right] = x.extent();
+  const auto [top, bottom] = y.extent();
   // Ticks at least 48 (x) and 22 (y) pixels apart, and at least three on a short axis.
   const double x_gap = std::min(48.0, (right - left) / 3.5), y_gap = std::min(22.0, (bottom - top) / 3.5);
   open("g", {{"class", "axes"}});
@@ -329,8 +344,8 @@ void Canvas::axes(const Axis& x, const Axis& y, std::string_view x_title, std::s
 }
 
 void Canvas::open_plot_area(const Axis& x, const Axis& y, const Attrs& attrs) {
-  const double left = std::min(x.from, x.to), right = std::max(x.from, x.to);
-  const double top = std::min(y.from, y.to), bottom = std::max(y.from, y.to);
+  const auto [left, right] = x.extent();
+  const auto [top, bottom] = y.extent();
   Attrs all = {{"x", px(left)},
                {"y", px(top)},
                {"width", px(right - left)},

@@ -182,7 +182,8 @@ std::size_t check_series(const o::CubeReader& cube, const std::string& html, con
       const auto se = numbers(s.at("data-se"));
       const auto se_row = cube.rows("mc", "coverage_se", mo, side, level, m, ni, 1);
       REQUIRE(se.size() == idx.size());
-      for (std::size_t k = 0; k < idx.size(); ++k) CHECK(same_bits(se[k], se_row[static_cast<std::size_t>(idx[k])]));
+      for (std::size_t k = 0; k < idx.size(); ++k)
+        CHECK(same_bits(se[k], se_row[static_cast<std::size_t>(idx[k])]));
     }
   }
   return series.size();
@@ -195,7 +196,8 @@ std::size_t check_heat_maps(const o::CubeReader& cube, const std::string& html, 
   std::map<std::string, std::pair<double, double>> classes;
   std::size_t rows_checked = 0;
   const std::regex tag(
-      "<g class=\"heat-(map|row)\"[^>]*>|<rect [^>]*data-bins=\"[^\"]*\"[^>]*/>|<rect [^>]*class=\"heat-key[^>]*/>");
+      "<g class=\"heat-(map|row)\"[^>]*>|<rect [^>]*data-bins=\"[^\"]*\"[^>]*/>|<rect "
+      "[^>]*class=\"heat-key[^>]*/>");
   Element map;
   std::vector<double> row_min;
   for (auto it = std::sregex_iterator(html.begin(), html.end(), tag); it != std::sregex_iterator(); ++it) {
@@ -231,8 +233,10 @@ std::size_t check_heat_maps(const o::CubeReader& cube, const std::string& html, 
         const auto colon = bin.find(':');
         const double p0 = std::strtod(bin.substr(0, colon).c_str(), nullptr);
         const double p1 = std::strtod(bin.substr(colon + 1).c_str(), nullptr);
-        const auto j0 = static_cast<std::size_t>(std::find(cube.p.begin(), cube.p.end(), p0) - cube.p.begin());
-        const auto j1 = static_cast<std::size_t>(std::find(cube.p.begin(), cube.p.end(), p1) - cube.p.begin());
+        const auto j0 =
+            static_cast<std::size_t>(std::find(cube.p.begin(), cube.p.end(), p0) - cube.p.begin());
+        const auto j1 =
+            static_cast<std::size_t>(std::find(cube.p.begin(), cube.p.end(), p1) - cube.p.begin());
         REQUIRE(j1 < P);
         double want = HUGE_VAL;
         for (std::size_t i = 0; i <= n1 - n0; ++i)
@@ -284,8 +288,8 @@ TEST_CASE("the report of an exact cube carries the cube's values", "[output][rep
   for (const char* id : {"s0-0-0", "s0-0-1", "s0-1-0", "s0-1-1"})
     CHECK(html.find(std::string("<section class=\"combo\" id=\"") + id + "\">") != std::string::npos);
   std::size_t notes = 0;
-  for (std::size_t at = 0; (at = html.find("Left out: blaker does not define the upper-bound side", at)) !=
-                           std::string::npos;
+  for (std::size_t at = 0;
+       (at = html.find("Left out: blaker does not define the upper-bound side", at)) != std::string::npos;
        ++at)
     ++notes;
   CHECK(notes == 2);
@@ -296,9 +300,9 @@ TEST_CASE("the report of an exact cube carries the cube's values", "[output][rep
   // Per level, coverage and width at 6 n: 3 methods two-sided, 2 (no blaker) upper-bound.
   CHECK(series == 2 * (3 * 6 * 2) + 2 * (2 * 6 * 2));
   const auto covers = elements(html, "polyline", "series");
-  CHECK(std::count_if(covers.begin(), covers.end(),
-                      [](const Element& el) { return el.at("data-method") == "plain <jeffreys> & 'co'"; }) ==
-        4 * 6 * 2);
+  CHECK(std::count_if(covers.begin(), covers.end(), [](const Element& el) {
+          return el.at("data-method") == "plain <jeffreys> & 'co'";
+        }) == 4 * 6 * 2);
   // Heat maps: 4 n bins per map, maps = 3 + 3 + 2 + 2.
   CHECK(check_heat_maps(cube, html, "exact") == 4 * 10);
 
@@ -329,7 +333,8 @@ TEST_CASE("chosen n and default options", "[output][report]") {
   // Unthinned and unbinned: every p, one heat row per n.
   check_series(cube, html, "exact", cube.p.size());
   CHECK(check_heat_maps(cube, html, "exact") == 10 * 11);
-  for (const auto& el : elements(html, "polyline", "series")) CHECK((el.at("data-n") == "3" || el.at("data-n") == "12"));
+  for (const auto& el : elements(html, "polyline", "series"))
+    CHECK((el.at("data-n") == "3" || el.at("data-n") == "12"));
 }
 
 TEST_CASE("the report of a simulated-only cube draws the Monte Carlo values", "[output][report]") {

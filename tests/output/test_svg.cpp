@@ -20,9 +20,9 @@ TEST_CASE("escape makes text safe for XML", "[output][svg]") {
   CHECK(svg::escape(std::string("\0", 1)) == "\xEF\xBF\xBD");
   // Valid UTF-8 passes; broken sequences, overlong forms and surrogates do not.
   CHECK(svg::escape("p̂ ≤ 95 % − α") == "p̂ ≤ 95 % − α");
-  CHECK(svg::escape("\xF0\x9F\x99\x82") == "\xF0\x9F\x99\x82");          // U+1F642
-  CHECK(svg::escape("x\xC3") == "x\xEF\xBF\xBD");                         // truncated
-  CHECK(svg::escape("\xC0\xAF") == "\xEF\xBF\xBD\xEF\xBF\xBD");           // overlong '/'
+  CHECK(svg::escape("\xF0\x9F\x99\x82") == "\xF0\x9F\x99\x82");                  // U+1F642
+  CHECK(svg::escape("x\xC3") == "x\xEF\xBF\xBD");                                // truncated
+  CHECK(svg::escape("\xC0\xAF") == "\xEF\xBF\xBD\xEF\xBF\xBD");                  // overlong '/'
   CHECK(svg::escape("\xED\xA0\x80") == "\xEF\xBF\xBD\xEF\xBF\xBD\xEF\xBF\xBD");  // surrogate D800
   CHECK(svg::escape("\xEF\xBF\xBE") == "\xEF\xBF\xBD\xEF\xBF\xBD\xEF\xBF\xBD");  // U+FFFE
 }
@@ -53,7 +53,8 @@ TEST_CASE("axes map data to pixels and choose readable ticks", "[output][svg]") 
   CHECK(x(0.5) == Approx(600));
   const auto ticks = x.ticks(48);
   REQUIRE(ticks.size() >= 5);
-  for (std::size_t i = 1; i < ticks.size(); ++i) CHECK(x(ticks[i].value) - x(ticks[i - 1].value) >= 48 - 1e-9);
+  for (std::size_t i = 1; i < ticks.size(); ++i)
+    CHECK(x(ticks[i].value) - x(ticks[i - 1].value) >= 48 - 1e-9);
   CHECK(ticks.front().label == "0");
   CHECK(ticks.back().label == "0.50");  // labels share the step's decimals
   // A vertical axis grows upwards.
@@ -67,6 +68,12 @@ TEST_CASE("axes map data to pixels and choose readable ticks", "[output][svg]") 
   bool has_half = false;
   for (const auto& t : l.ticks(40)) has_half |= t.label == "0.5";
   CHECK(has_half);
+  // A short axis over nearly all of [0, 1] still gets ticks inside its range.
+  const svg::Axis short_axis{0.0005, 0.9995, 0, 120, svg::Scale::linear};
+  const auto few = short_axis.ticks(34);
+  REQUIRE(few.size() >= 2);
+  CHECK(few.front().label == "0.2");
+  CHECK(few.back().label == "0.8");
   const auto [lo, hi] = svg::nice_range(0.231, 0.287, 6);
   CHECK(lo == Approx(0.23));
   CHECK(hi == Approx(0.29));

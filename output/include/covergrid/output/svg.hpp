@@ -51,8 +51,13 @@ struct Axis {
   double lo = 0, hi = 1;
   double from = 0, to = 1;
   Scale scale = Scale::linear;
+  /// Pixels the frame reaches beyond the lo and the hi end (cells centred on
+  /// the first and last grid value reach half a cell further).
+  double pad_lo = 0, pad_hi = 0;
 
   double operator()(double v) const;
+  /// The frame's pixel extent [min, max] along this axis, padding included.
+  std::pair<double, double> extent() const;
   /// Tick positions with labels: "nice" steps (1, 2, 5 times a power of ten)
   /// for a linear scale, powers of ten (and 2, 5 times them when few) for
   /// log, a fixed ladder of probabilities for logit; never closer than
