@@ -304,7 +304,8 @@ figure { margin: 8px 0 14px; }
 figcaption { font-size: 12.5px; color: #333; max-width: 1080px; margin-top: 4px; }
 div.maps { display: flex; flex-wrap: wrap; gap: 0; }
 nav ol { columns: 2; font-size: 14px; }
-svg { font-family: "DejaVu Sans", "Liberation Sans", Arial, sans-serif; display: block; }
+svg { font-family: "DejaVu Sans", "Liberation Sans", Arial, sans-serif; display: block; max-width: 100%;
+  height: auto; }
 svg .grid { stroke: #e7e7e7; stroke-width: 1; }
 svg .tick { stroke: #555; stroke-width: 1; }
 svg .frame { fill: none; stroke: #555; stroke-width: 1; }
