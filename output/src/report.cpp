@@ -282,6 +282,9 @@ class Report {
   std::map<std::string, std::vector<double>> stats_;
 };
 
+/// Marks a page as a covergrid report, so that a later report may replace it.
+constexpr const char* generator_meta = "<meta name=\"generator\" content=\"covergrid report\"/>";
+
 const char* const style_sheet = R"(
 body { font-family: "DejaVu Sans", "Liberation Sans", Arial, sans-serif; color: #1d1d1d; background: #fff;
   max-width: 1160px; margin: 0 auto; padding: 16px 20px 40px; line-height: 1.4;
@@ -354,9 +357,8 @@ std::string Report::html() {
   const std::string title = cube_.attr("title").empty() ? "covergrid results" : cube_.attr("title");
   std::string out;
   out += "<!DOCTYPE html>\n<html xmlns=\"http://www.w3.org/1999/xhtml\" lang=\"en\">\n<head>\n";
-  out +=
-      "<meta charset=\"utf-8\"/>\n<meta name=\"viewport\" content=\"width=device-width, "
-      "initial-scale=1\"/>\n";
+  out += "<meta charset=\"utf-8\"/>\n" + std::string(generator_meta) +
+         "\n<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"/>\n";
   out += "<title>" + escape(title) + " — covergrid report</title>\n";
   out += "<style>" + std::string(style_sheet) + heat_class_css() + "</style>\n</head>\n<body>\n";
   out += "<header>\n<h1>" + escape(title) + "</h1>\n";
@@ -965,12 +967,22 @@ void write_report(const CubeReader& cube, const ReportOptions& options, const st
   const fs::path out_path(html_path);
   if (html_path.empty()) throw InputError("-o", "give the report's file name");
   const fs::path parent = out_path.parent_path().empty() ? fs::path(".") : out_path.parent_path();
-  if (!fs::is_directory(parent))
-    throw InputError(html_path, fmt::format("its folder {} does not exist", parent.string()));
-  if (fs::is_directory(out_path)) throw InputError(html_path, "is a folder, not a file name");
   std::error_code ec;
-  if (fs::exists(out_path) && fs::equivalent(out_path, fs::path(cube.path()), ec))
-    throw InputError(html_path, "is the cube itself; choose another file name for the report");
+  if (!fs::is_directory(parent, ec))
+    throw InputError(html_path, fmt::format("its folder {} does not exist", parent.string()));
+  const auto status = fs::status(out_path, ec);
+  if (fs::is_directory(status)) throw InputError(html_path, "is a folder, not a file name");
+  if (fs::exists(status)) {
+    if (fs::equivalent(out_path, fs::path(cube.path()), ec))
+      throw InputError(html_path, "is the cube itself; choose another file name for the report");
+    // Only an earlier report is replaced; any other file is left alone.
+    std::ifstream old(html_path, std::ios::binary);
+    std::string head(1024, '\0');
+    old.read(head.data(), static_cast<std::streamsize>(head.size()));
+    head.resize(static_cast<std::size_t>(old.gcount()));
+    if (head.find(generator_meta) == std::string::npos)
+      throw InputError(html_path, "exists and is not a covergrid report; not replacing it");
+  }
 
   // Claim the temporary name first, so that an unwritable folder fails before the work.
   TempFile temp(html_path + ".partial");

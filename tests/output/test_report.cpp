@@ -17,14 +17,15 @@
 #include <catch2/catch.hpp>
 
 #include <algorithm>
+#include <cctype>
 #include <cmath>
 #include <cstdlib>
 #include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <map>
-#include <regex>
 #include <sstream>
+#include <stdexcept>
 
 namespace e = covergrid::engine;
 namespace o = covergrid::output;
@@ -101,18 +102,38 @@ std::string unescape(std::string s) {
 
 using Element = std::map<std::string, std::string>;
 
-/// Every start tag `<tag ...>` whose class attribute begins with `cls`, as attribute maps (unescaped).
+/// Every start tag of the page in document order: its name under "", its
+/// attributes (unescaped) under their names. A scanner of our own (the page
+/// escapes '<', '>' and '"' inside text and attribute values).
+std::vector<Element> start_tags(const std::string& html) {
+  std::vector<Element> out;
+  for (std::size_t at = html.find('<'); at != std::string::npos; at = html.find('<', at + 1)) {
+    if (at + 1 >= html.size() || !std::isalpha(static_cast<unsigned char>(html[at + 1]))) continue;
+    std::size_t i = at + 1;
+    Element el;
+    while (i < html.size() && std::isalnum(static_cast<unsigned char>(html[i]))) el[""] += html[i++];
+    while (i < html.size() && html[i] != '>') {
+      if (std::isspace(static_cast<unsigned char>(html[i])) || html[i] == '/') {
+        ++i;
+        continue;
+      }
+      const std::size_t eq = html.find('=', i);
+      const std::size_t open = eq + 1, close = html.find('"', open + 1);
+      if (eq == std::string::npos || html[open] != '"' || close == std::string::npos)
+        throw std::runtime_error("malformed attribute at offset " + std::to_string(i));
+      el[html.substr(i, eq - i)] = unescape(html.substr(open + 1, close - open - 1));
+      i = close + 1;
+    }
+    out.push_back(std::move(el));
+  }
+  return out;
+}
+
+/// The start tags `<tag ...>` whose class attribute begins with `cls`.
 std::vector<Element> elements(const std::string& html, const std::string& tag, const std::string& cls) {
   std::vector<Element> out;
-  const std::regex start("<" + tag + "\\s([^>]*)>");
-  const std::regex attr("([a-zA-Z-]+)=\"([^\"]*)\"");
-  for (auto it = std::sregex_iterator(html.begin(), html.end(), start); it != std::sregex_iterator(); ++it) {
-    const std::string body = (*it)[1];
-    Element el;
-    for (auto a = std::sregex_iterator(body.begin(), body.end(), attr); a != std::sregex_iterator(); ++a)
-      el[(*a)[1]] = unescape((*a)[2]);
-    if (el["class"].rfind(cls, 0) == 0) out.push_back(el);
-  }
+  for (auto& el : start_tags(html))
+    if (el[""] == tag && el["class"].rfind(cls, 0) == 0) out.push_back(el);
   return out;
 }
 
@@ -195,14 +216,13 @@ std::size_t check_heat_maps(const o::CubeReader& cube, const std::string& html, 
   // and each heat-row belongs to the last heat-map before it.
   std::map<std::string, std::pair<double, double>> classes;
   std::size_t rows_checked = 0;
-  const std::regex tag(
-      "<g class=\"heat-(map|row)\"[^>]*>|<rect [^>]*data-bins=\"[^\"]*\"[^>]*/>|<rect "
-      "[^>]*class=\"heat-key[^>]*/>");
   Element map;
   std::vector<double> row_min;
-  for (auto it = std::sregex_iterator(html.begin(), html.end(), tag); it != std::sregex_iterator(); ++it) {
-    const std::string text = it->str();
-    Element el = elements(text, text.rfind("<g", 0) == 0 ? "g" : "rect", "")[0];
+  for (Element& el : start_tags(html)) {
+    const bool wanted =
+        (el[""] == "g" && el["class"].rfind("heat-", 0) == 0) ||
+        (el[""] == "rect" && (el.count("data-bins") || el["class"].rfind("heat-key", 0) == 0));
+    if (!wanted) continue;
     if (el["class"].rfind("heat-key", 0) == 0) {
       if (el.count("data-lo"))  // the "no value" key has no range
         classes[el.at("class").substr(9)] = {std::strtod(el.at("data-lo").c_str(), nullptr),
@@ -384,6 +404,17 @@ TEST_CASE("bad input to the report is refused and leaves no file", "[output][rep
     const std::string before = slurp(s.cube_path);
     CHECK_THROWS_WITH(o::write_report(cube, {}, s.cube_path), Catch::Contains("is the cube itself"));
     CHECK(slurp(s.cube_path) == before);
+    // An existing file that is not a report is left alone; an earlier report is replaced.
+    std::ofstream(dir.file("notes.html")) << "<html>my notes</html>\n";
+    CHECK_THROWS_WITH(o::write_report(cube, {}, dir.file("notes.html")),
+                      Catch::Contains("exists and is not a covergrid report"));
+    CHECK(slurp(dir.file("notes.html")) == "<html>my notes</html>\n");
+    CHECK_FALSE(fs::exists(dir.file("notes.html.partial")));
+    o::write_report(cube, {}, out);
+    std::ofstream(out, std::ios::app) << "<!-- edited -->";
+    o::write_report(cube, {}, out);
+    CHECK(slurp(out).find("edited") == std::string::npos);
+    fs::remove(out);
     o::ReportOptions bins;
     bins.max_bins = 1;
     CHECK_THROWS_WITH(o::write_report(cube, bins, out), Catch::StartsWith("--max-bins"));

@@ -30,8 +30,8 @@ std::vector<std::size_t> report_n_indices(const CubeReader& cube, const std::vec
 /// Writes the report of `cube` to `html_path` (under a temporary name,
 /// renamed when complete). InputError (exit 2) for an incomplete or damaged
 /// cube, bad options, an output folder that does not exist or cannot be
-/// written, or an output path that is the cube itself; nothing is left at
-/// `html_path` then.
+/// written, an output path that is the cube itself or an existing file that
+/// is not an earlier report; nothing is written or changed at `html_path` then.
 void write_report(const CubeReader& cube, const ReportOptions& options, const std::string& html_path);
 
 /// SHA-256 of a file's bytes, read in pieces (the cube may be large).
