@@ -81,9 +81,11 @@ constexpr std::size_t max_auto_n = 6;
 
 // Method colours: our own choice of eight, alternating dark and light and
 // spread over blue, orange, teal, purple, olive and grey, so that pairs
-// differ in lightness as well as hue (they stay apart for red-green colour
-// deficiencies and in greyscale print). Beyond eight methods the colours
-// repeat with dashed, then dotted lines.
+// differ in lightness as well as hue; the intent is that they stay apart for
+// red-green colour deficiencies and in greyscale print (a design choice, not
+// checked with a colour-vision simulation). Beyond eight methods the colours
+// repeat with dashed, then dotted lines; the coverage panels hold one curve
+// each and stay solid.
 constexpr std::array<const char*, 8> line_colours = {"#1b4f8f", "#e08b1f", "#2a9d8f", "#7d3c98",
                                                      "#8a8a1e", "#5f5f5f", "#73a8dc", "#b5562c"};
 constexpr std::array<const char*, 3> line_dashes = {"", "7 3", "2 2.5"};
@@ -98,10 +100,10 @@ Attrs line_style(std::size_t i) {
 // Heat-map colour classes of coverage minus nominal, in multiples of
 // alpha = 1 - level (so that the classes mean the same at every level: -alpha
 // is a miss rate twice the nominal one). Our own diverging scale: browns and
-// oranges below nominal, near-white around it, blues above; blue against
-// orange stays distinct for red-green colour deficiencies, and the classes
-// darken away from the centre, so they also read in greyscale print. The
-// legend labels each class with its range in percentage points.
+// oranges below nominal, near-white around it, blues above (blue against
+// orange is the contrast that red-green colour deficiencies keep, common
+// practice); the classes darken away from the centre, and the legend labels
+// each with its range in percentage points, so print in grey stays readable.
 constexpr std::array<double, 9> class_edges = {-inf, -4, -2, -1, -0.5, -0.2, 0.2, 0.5, inf};
 constexpr std::array<const char*, 8> class_colours = {"#6b2a00", "#a8460c", "#d9742b", "#eda35f",
                                                       "#f6d3a8", "#f4f3ee", "#a9cbe3", "#3f7fb5"};
