@@ -1,5 +1,6 @@
 #include "covergrid/engine/sha256.hpp"
 
+#include <algorithm>
 #include <array>
 #include <cstdint>
 
@@ -55,26 +56,48 @@ void block(std::array<std::uint32_t, 8>& h, const unsigned char* p) {
 
 }  // namespace
 
-std::string sha256_hex(std::string_view data) {
-  std::array<std::uint32_t, 8> h = {0x6a09e667, 0xbb67ae85, 0x3c6ef372, 0xa54ff53a,
-                                    0x510e527f, 0x9b05688c, 0x1f83d9ab, 0x5be0cd19};
+Sha256::Sha256()
+    : h_{0x6a09e667, 0xbb67ae85, 0x3c6ef372, 0xa54ff53a, 0x510e527f, 0x9b05688c, 0x1f83d9ab, 0x5be0cd19} {}
+
+void Sha256::update(std::string_view data) {
   const auto* bytes = reinterpret_cast<const unsigned char*>(data.data());
-  std::size_t full = data.size() / 64;
-  for (std::size_t i = 0; i < full; ++i) block(h, bytes + 64 * i);
+  std::size_t size = data.size();
+  total_ += size;
+  if (pending_size_ > 0) {
+    const std::size_t take = std::min(size, pending_.size() - pending_size_);
+    std::copy(bytes, bytes + take, pending_.begin() + static_cast<std::ptrdiff_t>(pending_size_));
+    pending_size_ += take;
+    bytes += take;
+    size -= take;
+    if (pending_size_ < pending_.size()) return;
+    block(h_, pending_.data());
+    pending_size_ = 0;
+  }
+  for (; size >= 64; bytes += 64, size -= 64) block(h_, bytes);
+  std::copy(bytes, bytes + size, pending_.begin());
+  pending_size_ = size;
+}
+
+std::string Sha256::hex_digest() {
   unsigned char tail[128] = {};
-  const std::size_t rest = data.size() - 64 * full;
-  for (std::size_t i = 0; i < rest; ++i) tail[i] = bytes[64 * full + i];
-  tail[rest] = 0x80;
-  const std::size_t len = rest < 56 ? 64 : 128;
-  const std::uint64_t bits = static_cast<std::uint64_t>(data.size()) * 8;
+  std::copy(pending_.begin(), pending_.begin() + static_cast<std::ptrdiff_t>(pending_size_), tail);
+  tail[pending_size_] = 0x80;
+  const std::size_t len = pending_size_ < 56 ? 64 : 128;
+  const std::uint64_t bits = total_ * 8;
   for (int i = 0; i < 8; ++i) tail[len - 1 - i] = static_cast<unsigned char>(bits >> (8 * i));
-  block(h, tail);
-  if (len == 128) block(h, tail + 64);
+  block(h_, tail);
+  if (len == 128) block(h_, tail + 64);
   static const char* hex = "0123456789abcdef";
   std::string out;
-  for (std::uint32_t v : h)
+  for (std::uint32_t v : h_)
     for (int s = 28; s >= 0; s -= 4) out += hex[(v >> s) & 0xf];
   return out;
+}
+
+std::string sha256_hex(std::string_view data) {
+  Sha256 h;
+  h.update(data);
+  return h.hex_digest();
 }
 
 }  // namespace covergrid::engine

@@ -624,6 +624,15 @@ std::vector<double> CubeReader::row(const std::string& dataset, std::size_t mode
   return out;
 }
 
+std::vector<double> CubeReader::rows(const std::string& group, const std::string& metric, std::size_t model,
+                                     std::size_t side, std::size_t level, std::size_t method,
+                                     std::size_t n_begin, std::size_t n_count) const {
+  Handle d = open_dataset(file_.id(), "/" + group + "/" + metric);
+  std::vector<double> out(n_count * p.size());
+  read_block(d.get(), {model, side, level, method, n_begin, 0}, {1, 1, 1, 1, n_count, p.size()}, out.data());
+  return out;
+}
+
 std::vector<double> CubeReader::mc_row(const std::string& metric, std::size_t model, std::size_t side,
                                        std::size_t level, std::size_t method, std::size_t n_index) const {
   return row("/mc/" + metric, model, side, level, method, n_index);

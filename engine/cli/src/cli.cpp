@@ -27,6 +27,7 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   commands.push_back(add_plan_command(app));
   commands.push_back(add_rank_command(app));
   commands.push_back(add_merge_command(app));
+  commands.push_back(add_report_command(app));
 
   if (!args.empty() && !args[0].empty() && args[0][0] != '-') {
     std::string names;

@@ -30,6 +30,7 @@ Command add_audit_command(CLI::App& app);
 Command add_plan_command(CLI::App& app);
 Command add_rank_command(CLI::App& app);
 Command add_merge_command(CLI::App& app);
+Command add_report_command(CLI::App& app);
 
 /// Parses "id" or "id:key=value,key=value" into a method instance; errors
 /// name `option` (e.g. "--method").

@@ -139,6 +139,12 @@ class CubeReader {
   /// One exact metric over p for a single (model, side, level, method, n).
   std::vector<double> exact_row(const std::string& metric, std::size_t model, std::size_t side,
                                 std::size_t level, std::size_t method, std::size_t n_index) const;
+  /// Rows n_begin .. n_begin + n_count - 1 of one metric of `group` ("exact"
+  /// or "mc") for a single (model, side, level, method), laid out [n][p];
+  /// reading whole blocks spares decompressing a storage chunk once per row.
+  std::vector<double> rows(const std::string& group, const std::string& metric, std::size_t model,
+                           std::size_t side, std::size_t level, std::size_t method, std::size_t n_begin,
+                           std::size_t n_count) const;
   std::size_t summary_index(std::size_t model, std::size_t side, std::size_t level, std::size_t method,
                             std::size_t n_index) const {
     return (((model * sides.size() + side) * levels.size() + level) * methods.size() + method) * n.size() +

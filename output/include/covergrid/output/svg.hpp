@@ -1,0 +1,107 @@
+#pragma once
+/// A small SVG writer of our own for the report: escaped text, scales from
+/// data to pixels with tick choice, and a canvas that writes XML-compatible
+/// elements (every element closed, every attribute value escaped), so the
+/// page it lands in parses as XHTML as well as HTML.
+///
+/// Plot areas are nested <svg> viewports: a nested viewport clips what it
+/// holds, so curves that leave an axis range are cut at the frame without
+/// clip-path references.
+#include <cstddef>
+#include <string>
+#include <string_view>
+#include <utility>
+#include <vector>
+
+namespace covergrid::output::svg {
+
+/// Text made safe for XML character data and attribute values: & < > " '
+/// become entities; characters XML 1.0 forbids (C0 controls other than tab,
+/// newline, carriage return) and bytes that are not valid UTF-8 become
+/// U+FFFD.
+std::string escape(std::string_view text);
+
+/// A pixel coordinate: at most one decimal (a tenth of a pixel), trailing zeros dropped.
+std::string px(double v);
+
+/// A double in the shortest form that reads back as the same double
+/// ("nan", "inf", "-inf" when not finite).
+std::string exact(double v);
+
+/// Values joined by single spaces, each in exact() form.
+std::string exact_list(const std::vector<double>& values);
+
+using Attrs = std::vector<std::pair<std::string, std::string>>;
+
+enum class Scale { linear, log, logit };
+
+/// The scale that spreads a grid's points most evenly: logit for a p grid
+/// equally spaced in log-odds, log for an n grid equally spaced in log,
+/// linear otherwise (and always for fewer than three points).
+Scale evenest_scale(const std::vector<double>& grid, bool probabilities);
+
+struct Tick {
+  double value;
+  std::string label;
+};
+
+/// A map from a data range [lo, hi] to a pixel range [from, to] (to < from
+/// for a vertical axis, so that values grow upwards).
+struct Axis {
+  double lo = 0, hi = 1;
+  double from = 0, to = 1;
+  Scale scale = Scale::linear;
+  /// Pixels the frame reaches beyond the lo and the hi end (cells centred on
+  /// the first and last grid value reach half a cell further).
+  double pad_lo = 0, pad_hi = 0;
+
+  double operator()(double v) const;
+  /// The frame's pixel extent [min, max] along this axis, padding included.
+  std::pair<double, double> extent() const;
+  /// Tick positions with labels: "nice" steps (1, 2, 5 times a power of ten)
+  /// for a linear scale, powers of ten (and 2, 5 times them when few) for
+  /// log, a fixed ladder of probabilities for logit; never closer than
+  /// `min_gap` pixels.
+  std::vector<Tick> ticks(double min_gap) const;
+};
+
+/// Round [lo, hi] outwards to multiples of a nice step, about `count` steps.
+std::pair<double, double> nice_range(double lo, double hi, int count);
+
+/// One <svg> element under construction.
+class Canvas {
+ public:
+  /// `label` becomes the <title> (read out by screen readers, shown as a tooltip).
+  Canvas(double width, double height, std::string_view label, const Attrs& attrs = {});
+
+  /// Opens an element that will hold others (g, svg, text with tspans); close() ends it.
+  void open(std::string_view tag, const Attrs& attrs = {});
+  void close();
+  /// An element without children, self-closed.
+  void element(std::string_view tag, const Attrs& attrs);
+  void text(double x, double y, std::string_view content, const Attrs& attrs = {});
+  void rect(double x, double y, double w, double h, const Attrs& attrs = {});
+  void line(double x1, double y1, double x2, double y2, const Attrs& attrs = {});
+  /// A polyline through (x[i], y[i]); extra attributes carry the data.
+  void polyline(const std::vector<double>& x, const std::vector<double>& y, const Attrs& attrs = {});
+  /// A closed polygon (e.g. a band between two curves).
+  void polygon(const std::vector<double>& x, const std::vector<double>& y, const Attrs& attrs = {});
+
+  /// A frame for the plot area x.from..x.to by y.to..y.from with ticks, tick
+  /// labels, light grid lines at the ticks (unless grid_lines is false) and
+  /// axis titles (an empty title is left out).
+  void axes(const Axis& x, const Axis& y, std::string_view x_title, std::string_view y_title,
+            bool grid_lines = true);
+  /// Opens a nested viewport over the plot area of (x, y) whose user
+  /// coordinates are the page's own; close() ends it.
+  void open_plot_area(const Axis& x, const Axis& y, const Attrs& attrs = {});
+
+  /// The finished element (closing whatever is still open).
+  std::string finish();
+
+ private:
+  std::string out_;
+  std::vector<std::string> open_;
+};
+
+}  // namespace covergrid::output::svg

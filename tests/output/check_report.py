@@ -1,0 +1,267 @@
+#!/usr/bin/python3
+"""The HTML report checked from outside: covergrid runs two small scenarios
+(exact, and Monte Carlo only), writes their reports, and this script parses
+each page as XML (xml.etree.ElementTree, Python's standard library) and holds
+it to the cube read with h5py (Debian 12's python3-h5py 3.7.0, numpy 1.24.2;
+versions printed): every drawn value equals the cube's value bit for bit,
+heat-map bins are the minima of their cells and sit in their colour class,
+trade-off points and table figures are the cube's summaries, every method and
+axis title appears, the cube's SHA-256 matches hashlib, and the page refers
+to nothing outside itself (no script, no src, no href but #fragments, no
+@import or url() in CSS).
+Usage: check_report.py COVERGRID_EXE DIR"""
+import hashlib
+import os
+import re
+import subprocess
+import sys
+import xml.etree.ElementTree as ET
+
+import h5py
+import numpy as np
+
+exe, work = sys.argv[1], sys.argv[2]
+os.makedirs(work, exist_ok=True)
+XH = "{http://www.w3.org/1999/xhtml}"
+SV = "{http://www.w3.org/2000/svg}"
+
+EXACT = """title = "Report check: relay contacts <welded> & 'stuck'"
+seed = 812
+[grid]
+n = { from = 3, to = 40 }
+p = { from = 0.01, to = 0.6, count = 61, spacing = "logit" }
+levels = [0.9, 0.95]
+sides = ["two-sided", "lower-bound"]
+[[method]]
+id = "wilson"
+[[method]]
+id = "clopper-pearson"
+[[method]]
+id = "blaker"
+[[method]]
+id = "jeffreys"
+boundary = false
+label = "jeffreys <plain> & co"
+[output]
+cube = "exact.h5"
+tables = ""
+"""
+
+SIMULATED = """title = "Report check: simulated only"
+seed = 5150
+[grid]
+n = [6, 15, 30]
+p = { from = 0.04, to = 0.96, count = 24 }
+levels = [0.95]
+[evaluate]
+exact = false
+replicates = 3000
+[[method]]
+id = "wald"
+[[method]]
+id = "wilson"
+[output]
+cube = "simulated.h5"
+tables = ""
+"""
+
+
+def text(v):
+    return v.decode() if isinstance(v, bytes) else str(v)
+
+
+def floats(s):
+    return [float(w) for w in s.split()]
+
+
+def same(a, b):
+    """Bit-equal doubles (NaN equals NaN)."""
+    return np.float64(a).tobytes() == np.float64(b).tobytes()
+
+
+def run_case(name, scenario, report_args):
+    path = os.path.join(work, name + ".toml")
+    with open(path, "w") as f:
+        f.write(scenario)
+    cube = os.path.join(work, name + ".h5")
+    html = os.path.join(work, name + ".html")
+    for old in (cube, html):
+        if os.path.exists(old):
+            os.remove(old)
+    subprocess.run([exe, "run", path, "--quiet"], check=True, stdout=subprocess.DEVNULL)
+    subprocess.run([exe, "report", cube, "-o", html] + report_args, check=True, stdout=subprocess.DEVNULL)
+    return cube, html
+
+
+def check_self_contained(page, root):
+    assert page.startswith("<!DOCTYPE html>\n"), "no HTML5 doctype"
+    assert root.tag == XH + "html", root.tag
+    for el in root.iter():
+        tag = el.tag.split("}")[-1]
+        assert tag not in ("script", "iframe", "object", "embed", "img", "link", "image", "use"), tag
+        for k, v in el.attrib.items():
+            key = k.split("}")[-1]
+            assert key != "src", f"src= on <{tag}>"
+            if key == "href":
+                assert v.startswith("#"), f"href to {v!r}"
+            assert not key.startswith("on"), f"event handler {key} on <{tag}>"
+            assert "url(" not in v, f"url( in {key} of <{tag}>"
+    for style in root.iter(XH + "style"):
+        css = style.text or ""
+        assert "@import" not in css
+        for m in re.finditer(r"url\(\s*['\"]?([^'\")]*)", css):
+            assert m.group(1).startswith("data:"), m.group(0)
+    assert not re.search(r"https?://(?!www\.w3\.org/(1999/xhtml|2000/svg))", page), "an http(s) address"
+
+
+def check_case(cube_path, html_path, expect_source, max_bins):
+    page = open(html_path, encoding="utf-8").read()
+    root = ET.fromstring(page.split("\n", 1)[1])  # the doctype line is not XML
+    check_self_contained(page, root)
+    counts = {"series": 0, "heat rows": 0, "points": 0, "table cells": 0}
+    with h5py.File(cube_path, "r") as f:
+        source = "exact" if "exact" in f else "mc"
+        assert source == expect_source
+        axes = {k: f["axes/" + k][()] for k in ("model", "side", "level", "method", "n", "p")}
+        models = [text(v) for v in axes["model"]]
+        sides = [text(v) for v in axes["side"]]
+        methods = [text(v) for v in axes["method"]]
+        levels, ns, ps = list(axes["level"]), list(axes["n"]), axes["p"]
+
+        # Provenance: the cube file's SHA-256, the axes, seed and versions.
+        sha = hashlib.sha256(open(cube_path, "rb").read()).hexdigest()
+        body = "".join(root.itertext())
+        assert sha in body, "cube SHA-256 not on the page"
+        for attr in ("seed", "tool_version", "created_utc", "scenario_sha256"):
+            assert text(f.attrs[attr]) in body, attr
+        p_axis = root.find(f".//{XH}td[@id='p-axis']")
+        assert [float(v) for v in p_axis.get("data-p").split()] == list(ps)
+        n_axis = root.find(f".//{XH}td[@id='n-axis']")
+        assert [int(float(v)) for v in n_axis.get("data-n").split()] == list(ns)
+
+        # Every method in the methods table; every axis title.
+        listed = {"".join(c.itertext()) for c in root.iter(XH + "code")}
+        for m in methods:
+            assert m in listed, f"method {m} not listed"
+        titles = {"".join(t.itertext()) for t in root.iter(SV + "text") if t.get("class") == "axis-title"}
+        for want in ("p", "n", "coverage", "expected width E[U − L]",
+                     "mean width (average over n of the grid mean)"):
+            assert want in titles, f"axis title {want!r} missing ({titles})"
+        assert any(t.startswith("worst-case coverage") for t in titles)
+
+        def where(el):
+            return (models.index(el.get("data-model")), sides.index(el.get("data-side")),
+                    [i for i, l in enumerate(levels) if same(l, float(el.get("data-level")))][0],
+                    methods.index(el.get("data-method")))
+
+        # Curves: the cube's values at the drawn p, in p order.
+        drawn_methods = set()
+        for el in root.iter(SV + "polyline"):
+            if el.get("class") != "series":
+                continue
+            assert el.get("data-source") == source
+            mo, s, l, m = where(el)
+            ni = ns.index(int(el.get("data-n")))
+            idx = [int(v) for v in el.get("data-p-index").split()]
+            assert idx == sorted(idx) and len(set(idx)) == len(idx)
+            row = f[f"{source}/{el.get('data-kind')}"][mo, s, l, m, ni, :]
+            got = floats(el.get("data-values"))
+            assert len(got) == len(idx) == len(el.get("points").split())
+            for i, v in zip(idx, got):
+                assert same(v, row[i]), (el.get("data-method"), el.get("data-n"), ps[i], v, row[i])
+            if source == "mc" and el.get("data-kind") == "coverage":
+                se = f["mc/coverage_se"][mo, s, l, m, ni, :]
+                for i, v in zip(idx, floats(el.get("data-se"))):
+                    assert same(v, se[i])
+            drawn_methods.add(el.get("data-method"))
+            counts["series"] += 1
+        assert drawn_methods == set(methods), drawn_methods
+
+        # Heat maps: each bin the minimum over its cells; each run of bins in its colour class.
+        classes = {}
+        for el in root.iter():
+            cls = el.get("class") or ""
+            if cls.startswith("heat-key") and el.get("data-lo") is not None:
+                classes[cls.split()[1]] = (float(el.get("data-lo")), float(el.get("data-hi")))
+            if cls != "heat-map":
+                continue
+            assert len(classes) == 8
+            mo, s, l, m = where(el)
+            level = levels[l]
+            cov = f[f"{source}/coverage"][mo, s, l, m, :, :]
+            bins = [tuple(float(x) for x in b.split(":")) for b in el.get("data-p-bins").split()]
+            assert len(bins) <= max_bins
+            p_index = {float(v): i for i, v in enumerate(ps)}
+            rows = [r for r in el if r.get("class") == "heat-row"]
+            assert 0 < len(rows) <= max_bins
+            covered_n = []
+            for r in rows:
+                lo_n, hi_n = (int(float(v)) for v in r.get("data-n-range").split())
+                i0, i1 = ns.index(lo_n), ns.index(hi_n)
+                covered_n.extend(range(i0, i1 + 1))
+                values = floats(r.get("data-values"))
+                assert len(values) == len(bins)
+                covered_p = []
+                for b, (p0, p1) in enumerate(bins):
+                    j0, j1 = p_index[p0], p_index[p1]
+                    covered_p.extend(range(j0, j1 + 1))
+                    assert same(values[b], np.min(cov[i0:i1 + 1, j0:j1 + 1])), (r.get("data-n-range"), b)
+                assert covered_p == list(range(len(ps))), "p bins do not tile the axis"
+                for rect in r:
+                    a, e = (int(v) for v in rect.get("data-bins").split())
+                    lo, hi = classes[rect.get("class")]
+                    for b in range(a, e + 1):
+                        assert lo <= values[b] - level < hi, (values[b], level, rect.get("class"))
+                counts["heat rows"] += 1
+            assert covered_n == list(range(len(ns))), "n bins do not tile the axis"
+
+        # Trade-off points: the ranking's mean width and worst coverage over n (sequential sums, as covergrid).
+        worst_stat = "summary/inf_coverage" if source == "exact" else "summary/mc_min_coverage"
+        width_stat = "summary/mean_width" if source == "exact" else "summary/mc_mean_width"
+        for el in root.iter(SV + "circle"):
+            if el.get("class") != "point":
+                continue
+            section = [sec for sec in root.iter(XH + "section") if el in list(sec.iter())][0]
+            mo, s, l = (int(v) for v in section.get("id")[1:].split("-"))
+            m = methods.index(el.get("data-method"))
+            worst = f[worst_stat][mo, s, l, m, :]
+            widths = f[width_stat][mo, s, l, m, :]
+            total = 0.0
+            for w in widths:
+                total += float(w)
+            assert same(float(el.get("data-y")), np.min(worst))
+            assert same(float(el.get("data-x")), total / len(widths))
+            counts["points"] += 1
+
+        # Summary table: mean coverage and min coverage at the drawn n are the cube's summaries.
+        prefix = "" if source == "exact" else "mc_"
+        for sec in root.iter(XH + "section"):
+            if sec.get("class") != "combo":
+                continue
+            mo, s, l = (int(v) for v in sec.get("id")[1:].split("-"))
+            table = [t for t in sec.iter(XH + "table") if t.get("class") == "summary"]
+            if not table:
+                continue
+            for tr in table[0].iter(XH + "tr"):
+                cells = list(tr)
+                if cells[0].tag == XH + "th":
+                    continue
+                m, ni = methods.index(cells[0].text), ns.index(int(cells[1].text))
+                for col, stat in ((2, "mean_coverage"), (3, "min_coverage")):
+                    want = f[f"summary/{prefix}{stat}"][mo, s, l, m, ni]
+                    assert same(float(cells[col].get("data-value")), want), (stat, cells[0].text)
+                    counts["table cells"] += 1
+    return counts
+
+
+if __name__ == "__main__":
+    cube, html = run_case("exact", EXACT, ["--max-bins", "10"])
+    c1 = check_case(cube, html, "exact", 10)
+    page = open(html, encoding="utf-8").read()
+    assert "Left out: blaker does not define the lower-bound side" in page
+    assert "p axis is in log-odds" in page
+    cube, html = run_case("simulated", SIMULATED, [])
+    c2 = check_case(cube, html, "mc", 80)
+    assert "Simulated: every figure" in open(html, encoding="utf-8").read()
+    print(f"h5py {h5py.__version__}, numpy {np.__version__}: exact report {c1}, simulated report {c2}: "
+          "values equal the cube's, page self-contained")
