@@ -14,6 +14,7 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <list>
 #include <map>
 #include <memory>
 #include <mutex>
@@ -307,6 +308,102 @@ class RowCache {
 };
 
 }  // namespace
+
+namespace {
+
+/// Interval tables per (model, n index) for chunks that arrive in an order
+/// not known in advance: shared while in use, then kept for the `keep` most
+/// recently released rows (the next chunks often continue a row).
+class SharedRowCache {
+ public:
+  SharedRowCache(const Scenario& s, const std::vector<Combo>& combos, std::size_t keep)
+      : scenario_(s), combos_(combos), keep_(keep) {}
+
+  const RowTables* acquire(std::size_t model, std::size_t n_index) {
+    std::shared_ptr<Entry> entry;
+    {
+      std::lock_guard lock(mutex_);
+      auto& slot = entries_[{model, n_index}];
+      if (!slot) slot = std::make_shared<Entry>();
+      if (slot->users++ == 0) idle_.remove({model, n_index});
+      entry = slot;
+    }
+    std::call_once(entry->once, [&] {
+      entry->tables.resize(combos_.size());
+      tbb::this_task_arena::isolate([&] {
+        tbb::parallel_for(std::size_t{0}, combos_.size(), [&](std::size_t c) {
+          entry->tables[c] = table_for(combos_[c], scenario_.n[n_index]);
+        });
+      });
+    });
+    return &entry->tables;
+  }
+
+  void release(std::size_t model, std::size_t n_index) {
+    std::lock_guard lock(mutex_);
+    auto& entry = entries_.at({model, n_index});
+    if (--entry->users > 0) return;
+    idle_.push_back({model, n_index});
+    if (idle_.size() > keep_) {
+      entries_.erase(idle_.front());
+      idle_.pop_front();
+    }
+  }
+
+ private:
+  using Key = std::pair<std::size_t, std::size_t>;
+  struct Entry {
+    std::once_flag once;
+    RowTables tables;
+    std::size_t users = 0;
+  };
+  const Scenario& scenario_;
+  const std::vector<Combo>& combos_;
+  std::size_t keep_;
+  std::mutex mutex_;
+  std::map<Key, std::shared_ptr<Entry>> entries_;
+  std::list<Key> idle_;  // released rows, oldest first
+};
+
+}  // namespace
+
+void compute_feed(const Scenario& scenario, const Plan& plan, ChunkFeed& feed, int threads_wanted) {
+  const auto combos = combos_of(scenario);
+  const int threads = threads_wanted > 0 ? threads_wanted : tbb::this_task_arena::max_concurrency();
+  tbb::task_arena arena(threads);
+  const std::size_t tokens = static_cast<std::size_t>(threads) * 2;
+  SharedRowCache cache(scenario, combos, plan.n_block * 2 + 2);
+  using Result = std::shared_ptr<ChunkResult>;
+  arena.execute([&] {
+    tbb::parallel_pipeline(
+        tokens,
+        tbb::make_filter<void, std::size_t>(tbb::filter_mode::serial_in_order,
+                                            [&](tbb::flow_control& fc) -> std::size_t {
+                                              const auto id = feed.next();
+                                              if (!id) {
+                                                fc.stop();
+                                                return 0;
+                                              }
+                                              return *id;
+                                            }) &
+            tbb::make_filter<std::size_t, Result>(tbb::filter_mode::parallel,
+                                                  [&](std::size_t id) {
+                                                    const ChunkSpec& c = plan.chunks.at(id);
+                                                    std::vector<const RowTables*> rows;
+                                                    for (std::size_t i = 0; i < c.n_count; ++i)
+                                                      rows.push_back(cache.acquire(c.model, c.n_begin + i));
+                                                    auto r = std::make_shared<ChunkResult>(
+                                                        compute_with_tables(scenario, c, rows));
+                                                    for (std::size_t i = 0; i < c.n_count; ++i)
+                                                      cache.release(c.model, c.n_begin + i);
+                                                    return r;
+                                                  }) &
+            tbb::make_filter<Result, void>(tbb::filter_mode::serial_out_of_order, [&](const Result& r) {
+              check_written(*r, scenario);
+              feed.done(std::move(*r));
+            }));
+  });
+}
 
 RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options) {
   const Plan plan = make_plan(scenario, options.chunk_cells);

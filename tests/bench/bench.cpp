@@ -32,7 +32,10 @@
 #include <chrono>
 #include <cmath>
 #include <cstdlib>
+#include <algorithm>
 #include <filesystem>
+#include <fstream>
+#include <stdexcept>
 #include <string>
 #include <vector>
 
@@ -371,6 +374,141 @@ void shard_cost() {
   }
 }
 
+/// Runs a shell command; throws when it fails.
+void shell(const std::string& command) {
+  if (std::system(command.c_str()) != 0) throw std::runtime_error("bench: failed: " + command);
+}
+
+double timed(const std::string& command) {
+  const double t0 = now();
+  shell(command);
+  return now() - t0;
+}
+
+/// Shard balance: the 4 shards of a grid whose chunk costs differ 100-fold,
+/// each run alone on one thread (null sink), against the total.
+void shards() {
+  const auto s = covergrid::scenarios::load_scenario_text(std::string(R"(
+[grid]
+n = { from = 10, to = 20000, count = 24, spacing = "log" }
+p = { from = 0.001, to = 0.999, count = 2048 }
+levels = [0.95]
+)") + five_methods,
+                                                          "bench.toml", "");
+  const auto plan = e::make_plan(s);
+  const std::size_t N = 4;
+  std::vector<double> t;
+  for (std::size_t k = 1; k <= N; ++k) {
+    const auto ids = e::shard_chunks(s, plan, {k, N});
+    NullSink sink(plan.chunks.size());
+    sink.set_combos(e::combo_count(s));
+    e::RunOptions o;
+    o.threads = 1;
+    o.only_chunks = &ids;
+    const double t0 = now();
+    e::run_scenario(s, sink, o);
+    t.push_back(now() - t0);
+  }
+  const double lo = *std::min_element(t.begin(), t.end()), hi = *std::max_element(t.begin(), t.end());
+  fmt::print("shards: 4 shards of n = 10..20000 (24 rows, log) x 2048 p, 5 methods, one thread each\n");
+  fmt::print("  {:.2f} / {:.2f} / {:.2f} / {:.2f} s: slowest over fastest {:.2f} (1 = even)\n", t[0], t[1],
+             t[2], t[3], hi / lo);
+}
+
+/// Merge: 4 shard cubes of a grid joined into one cube; seconds per GB of
+/// the merged cube (a cube of about 0.2 GB, so the bench stays short; the
+/// merge streams chunk by chunk, so its time grows linearly with the size).
+void merge_cost() {
+  namespace fs = std::filesystem;
+  const fs::path dir = fs::temp_directory_path() / "covergrid-bench-merge";
+  fs::remove_all(dir);
+  fs::create_directories(dir);
+  std::ofstream(dir / "m.toml") << std::string(R"(
+[grid]
+n = { from = 1, to = 240 }
+p = { from = 0.0005, to = 0.9995, count = 2000 }
+levels = [0.9, 0.95]
+[output]
+cube = "m.h5"
+tables = ""
+)") + five_methods;
+  const std::string exe = COVERGRID_EXE, where = "cd '" + dir.string() + "' && ";
+  const double single = timed(where + "'" + exe + "' run m.toml --quiet >/dev/null");
+  for (int k = 1; k <= 4; ++k)
+    shell(where + "'" + exe + "' run m.toml --quiet --shard " + std::to_string(k) + "/4 >/dev/null");
+  const double merge =
+      timed(where + "'" + exe + "' merge m.shard-*-of-4.h5 -o merged.h5 --quiet --no-tables >/dev/null");
+  const double gb = static_cast<double>(fs::file_size(dir / "merged.h5")) / 1e9;
+  fs::remove_all(dir);
+  fmt::print("merge: 4 shards of n = 1..240 x 2000 p, 5 methods, 2 levels (exact) into a {:.3f} GB cube\n",
+             gb);
+  fmt::print(
+      "  merge {:.2f} s = {:.1f} s per GB of cube (linear in the size; measured at {:.2f} GB); the single "
+      "run "
+      "took {:.2f} s (2 threads)\n",
+      merge, merge / gb, gb, single);
+}
+
+/// MPI: 2 ranks x 1 thread against 1 rank x 1 thread, the whole run (start,
+/// compute, cube), on 1e5 cells; needs the MPI build (COVERGRID_MPI_EXE) and
+/// its mpirun (COVERGRID_MPIRUN), which scripts/bench sets.
+void mpi_speedup() {
+  namespace fs = std::filesystem;
+  const char* exe = std::getenv("COVERGRID_MPI_EXE");
+  const char* mpirun = std::getenv("COVERGRID_MPIRUN");
+  if (!exe || !mpirun) {
+    fmt::print("mpi: skipped (set COVERGRID_MPI_EXE and COVERGRID_MPIRUN; scripts/bench does)\n");
+    return;
+  }
+  const fs::path dir = fs::temp_directory_path() / "covergrid-bench-mpi";
+  fs::remove_all(dir);
+  fs::create_directories(dir);
+  std::ofstream(dir / "m.toml") << std::string(R"(
+seed = 1
+[grid]
+n = { from = 10, to = 400, step = 10 }
+p = { from = 0.0004, to = 0.9996, count = 2500 }
+levels = [0.95]
+[evaluate]
+replicates = 2000
+[output]
+cube = "m.h5"
+tables = ""
+)") + five_methods;
+  const std::string base = fmt::format(
+      "cd '{}' && OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1 '{}' "
+      "--oversubscribe -n ",
+      dir.string(), mpirun);
+  const std::string log = (dir / "progress.txt").string();
+  const std::string run = fmt::format(" '{}' run m.toml --threads 1 --overwrite >/dev/null 2>'{}'", exe, log);
+  // The compute phase's rate: the last progress line's cells/s (the run's
+  // own figure, from its first chunk to its last).
+  auto rate = [&] {
+    std::ifstream in(log);
+    const std::string text((std::istreambuf_iterator<char>(in)), {});
+    const auto end = text.rfind(" cells/s");
+    const auto begin = text.rfind(", ", end);
+    return std::stod(text.substr(begin + 2, end - begin - 2));
+  };
+  double one = 1e300, two = 1e300, rate_one = 0, rate_two = 0;
+  for (int rep = 0; rep < 2; ++rep) {
+    one = std::min(one, timed(base + "1" + run));
+    rate_one = std::max(rate_one, rate());
+    two = std::min(two, timed(base + "2" + run));
+    rate_two = std::max(rate_two, rate());
+  }
+  fs::remove_all(dir);
+  fmt::print(
+      "mpi: 1e5 cells (n = 10..400 step 10 x 2500 p, 5 methods, exact + 2000 replicates), whole run "
+      "under mpirun, best of 2\n");
+  fmt::print("  1 rank x 1 thread {:.2f} s, 2 ranks x 1 thread {:.2f} s: speed-up {:.2f} (2 cores)\n", one,
+             two, one / two);
+  fmt::print(
+      "  chunk phase alone: {:.3g} against {:.3g} cells/s: speed-up {:.2f} (the rest is mpirun's start and "
+      "the cube's assembly on rank 0)\n",
+      rate_one, rate_two, rate_two / rate_one);
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -384,5 +522,8 @@ int main(int argc, char** argv) {
   if (what == "all" || what == "mc-threads") mc_threads();
   if (what == "all" || what == "plan") plan_search();
   if (what == "all" || what == "shard-cost") shard_cost();
+  if (what == "all" || what == "shards") shards();
+  if (what == "all" || what == "merge") merge_cost();
+  if (what == "all" || what == "mpi") mpi_speedup();
   return 0;
 }

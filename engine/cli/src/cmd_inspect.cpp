@@ -65,7 +65,7 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
   if (!cube.has_mc())
     throw InputError(path, "holds no Monte Carlo results (the scenario had replicates = 0)");
   const engine::Scenario s =
-      scenarios::load_scenario_text(cube.attr("scenario"), path + " (its scenario)", "");
+      scenarios::load_scenario_text(cube.attr("scenario"), path + " (its scenario)", "", false);
   if (s.sha256 != cube.attr("scenario_sha256"))
     throw InputError(path, "its stored scenario does not match its checksum");
   auto find = [&](const std::string& label) {

@@ -10,6 +10,10 @@
 #include <fmt/format.h>
 #include <unistd.h>
 
+#ifdef COVERGRID_MPI
+#include "mpi_run.hpp"
+#endif
+
 #include <algorithm>
 #include <atomic>
 #include <chrono>
@@ -113,7 +117,7 @@ int print_plan(const engine::Scenario& scenario, const engine::Plan& plan,
   return exit_ok;
 }
 
-int cmd_run(const RunArgs& a, std::ostream& out, std::ostream& err) {
+int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
   const bool quiet = a.quiet;
   // The option is checked before anything is read or written.
   std::optional<engine::ShardSpec> spec;
@@ -158,7 +162,12 @@ int cmd_run(const RunArgs& a, std::ostream& out, std::ostream& err) {
     auto old_term = std::signal(SIGTERM, on_stop_signal);
     engine::RunReport report;
     try {
-      report = engine::run_scenario(scenario, writer, options);
+#ifdef COVERGRID_MPI
+      if (mpi::active())
+        report = mpi::run_ranks(scenario, plan, writer, options);
+      else
+#endif
+        report = engine::run_scenario(scenario, writer, options);
     } catch (...) {
       std::signal(SIGINT, old_int);
       std::signal(SIGTERM, old_term);
@@ -167,6 +176,21 @@ int cmd_run(const RunArgs& a, std::ostream& out, std::ostream& err) {
     std::signal(SIGINT, old_int);
     std::signal(SIGTERM, old_term);
     progress.done();
+    if (!quiet && report.chunks_by_rank.size() > 1) {
+      std::string counts;
+      for (std::size_t r = 0; r < report.chunks_by_rank.size(); ++r)
+        counts += fmt::format("{}rank {}: {}", r ? ", " : "", r, report.chunks_by_rank[r]);
+      err << fmt::format("covergrid: {} ranks computed {} chunks ({})\n", report.chunks_by_rank.size(),
+                         report.chunks_computed, counts);
+    }
+    if (!report.failure.empty()) {
+      err << fmt::format(
+          "covergrid: {}; the run stopped; {} of {} chunks are saved in {}; run the same command (with or "
+          "without mpirun) to resume\n",
+          report.failure, report.chunks_resumed + report.chunks_computed, report.chunks_total,
+          output::journal_path(scenario.cube_path));
+      return exit_internal;
+    }
     if (report.interrupted) {
       err << fmt::format(
           "covergrid: stopped; {} of {} chunks are saved in {}; run the same command to resume\n",
@@ -189,6 +213,30 @@ int cmd_run(const RunArgs& a, std::ostream& out, std::ostream& err) {
     for (const auto& p : output::write_tables(cube, scenario.tables_prefix)) out << "table: " << p << '\n';
   out << output::headline(cube);
   return exit_ok;
+}
+
+int cmd_run(const RunArgs& a, std::ostream& out, std::ostream& err) {
+#ifdef COVERGRID_MPI
+  // Under mpirun: rank 0 does what a single process does and deals the
+  // chunks; the others wait for them. Rank 0 always tells the others when
+  // there is nothing to deal (done, dry run, or an error).
+  if (mpi::active()) {
+    if (mpi::rank() > 0) return mpi::serve(a.threads);
+    int status = exit_internal;
+    try {
+      status = run_root(a, out, err);
+    } catch (const InputError&) {
+      mpi::release_ranks(exit_bad_input);
+      throw;
+    } catch (...) {
+      mpi::release_ranks(exit_internal);
+      throw;
+    }
+    mpi::release_ranks(status);
+    return status;
+  }
+#endif
+  return run_root(a, out, err);
 }
 
 }  // namespace

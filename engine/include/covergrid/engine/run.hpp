@@ -8,6 +8,8 @@
 #include <cmath>
 #include <cstddef>
 #include <functional>
+#include <optional>
+#include <string>
 #include <vector>
 
 namespace covergrid::engine {
@@ -34,11 +36,34 @@ struct RunReport {
   std::size_t chunks_computed = 0;
   std::size_t chunks_resumed = 0;  // already complete in the output
   bool interrupted = false;
+  /// Set when part of a distributed run failed (which rank, and why); the
+  /// run then stopped like an interrupted one.
+  std::string failure;
+  /// Chunks computed by each rank of a distributed run (empty otherwise).
+  std::vector<std::size_t> chunks_by_rank;
 };
 
 /// Runs every chunk not yet complete in `sink`, then the summaries, then
 /// sink.finish(). On interruption it checkpoints and returns without finish().
 RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options = {});
+
+/// Hands out chunk ids and takes their results, for runs whose chunks are
+/// dealt from elsewhere (the ranks of an MPI run). next() is called from one
+/// thread at a time, done() likewise, possibly at the same time as next().
+class ChunkFeed {
+ public:
+  virtual ~ChunkFeed() = default;
+  /// The next chunk to compute, or nullopt when there is no more (may block).
+  virtual std::optional<std::size_t> next() = 0;
+  /// A computed chunk, checked for unset cells.
+  virtual void done(ChunkResult&& result) = 0;
+};
+
+/// Computes the chunks `feed` hands out, in any order, on `threads` threads
+/// (0 = all), up to 2 per thread in flight; rows' interval tables are shared
+/// by the chunks in flight and kept for a few rows after. An exception from
+/// the feed or a chunk stops it and is rethrown.
+void compute_feed(const Scenario& scenario, const Plan& plan, ChunkFeed& feed, int threads);
 
 /// What follows the chunks of a whole-scenario run: the grid statistics of
 /// rows split over several chunks (read back through sink.read_rows, every

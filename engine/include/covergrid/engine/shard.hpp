@@ -27,7 +27,7 @@ ShardSpec parse_shard(const std::string& text, const std::string& option = "--sh
 /// Estimated relative cost of a chunk: per cell, sqrt(n) + a constant for
 /// each source (the pmf window has O(sqrt n) terms) plus a term in the Monte
 /// Carlo replicates; per row, its share of the interval tables (O(n)) and, in
-/// the chunk with p_begin = 0, the continuous infimum (O(n)). Only the ratios
+/// the chunk with p_begin = 0, the continuous infimum (measured to grow like n^1.3). Only the ratios
 /// between chunks matter.
 double chunk_cost(const Scenario& scenario, const ChunkSpec& chunk);
 
