@@ -197,7 +197,8 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
     s += "\nPaired differences re-draw the run's own samples (common random numbers); +/- is one standard "
          "error\n"
          "of the band's mean difference.\n";
-  s += fmt::format("\n{}\n", coverage_caution);
+  s += '\n';
+  s += wrap_text(coverage_caution, 100);
   return s;
 }
 

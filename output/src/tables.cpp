@@ -20,6 +20,29 @@ const char* const coverage_caution =
     "interval contains the truth. A method choice for regulated or clinical work follows the "
     "applicable guidance and a qualified statistician's review.";
 
+std::string wrap_text(const std::string& text, std::size_t width) {
+  std::string out, line;
+  std::size_t start = 0;
+  while (start < text.size()) {
+    std::size_t end = text.find(' ', start);
+    if (end == std::string::npos) end = text.size();
+    const std::string word = text.substr(start, end - start);
+    if (!line.empty() && line.size() + 1 + word.size() > width) {
+      out += line;
+      out += '\n';
+      line.clear();
+    }
+    if (!line.empty()) line += ' ';
+    line += word;
+    start = end + 1;
+  }
+  if (!line.empty()) {
+    out += line;
+    out += '\n';
+  }
+  return out;
+}
+
 namespace {
 
 constexpr double nan = std::numeric_limits<double>::quiet_NaN();

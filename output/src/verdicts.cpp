@@ -142,7 +142,7 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
                            verdicts[i].worst_coverage, tail_text(verdicts[i]));
       out += "\n";
     }
-    out += std::string(coverage_caution) + "\n";
+    out += wrap_text(coverage_caution, 100);
     return out;
   }
   if (format == VerdictFormat::csv) {

@@ -16,7 +16,7 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
                "covergrid"};
   app.require_subcommand(1);
   app.set_version_flag("--version", std::string(tool_version));
-  app.footer(std::string("\n") + output::coverage_caution);
+  app.footer(std::string(1, '\n').append(output::wrap_text(output::coverage_caution, 100)));
 
   std::vector<Command> commands;
   commands.push_back(add_run_command(app));

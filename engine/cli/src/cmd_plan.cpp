@@ -122,7 +122,7 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out) {
            "\"every n from\" is safe throughout the search range. The margin is the largest over every "
            "outcome\n"
            "x = 0..n (half the width two-sided, estimate to limit one-sided), so it does not depend on p.\n"
-        << output::coverage_caution << '\n';
+        << output::wrap_text(output::coverage_caution, 100);
   }
   return exit_ok;
 }

@@ -35,4 +35,8 @@ std::string headline(const CubeReader& cube);
 /// The cautions every report and table carries.
 extern const char* const coverage_caution;
 
+/// `text` broken into lines of at most `width` characters at spaces (for the
+/// terminal), ending with a newline.
+std::string wrap_text(const std::string& text, std::size_t width = 78);
+
 }  // namespace covergrid::output
