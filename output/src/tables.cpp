@@ -246,8 +246,7 @@ std::string headline(const CubeReader& cube) {
     out +=
         "\nMonte Carlo estimates: worst = smallest simulated grid coverage at any n; mean = mean over the\n"
         "grid, averaged over n; RMS = deviation of grid coverage from nominal, in percentage points.\n\n";
-  out += coverage_caution;
-  out += '\n';
+  out += wrap_text(coverage_caution, 100);
   return out;
 }
 
