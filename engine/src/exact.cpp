@@ -293,6 +293,29 @@ std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo
   return {low / scale, high / scale};
 }
 
+namespace {
+
+/// The measure of {p in [a, b] : f(p) < threshold} for f unimodal on [a, b]
+/// (so {f >= threshold} is one interval): nothing when both ends are at or
+/// above it, else the crossings by TOMS 748, with Brent's method for the
+/// maximum where both ends are below.
+template <class F>
+double unimodal_measure_below(F f, double a, double b, double threshold) {
+  const double fa = f(a), fb = f(b);
+  if (fa >= threshold && fb >= threshold) return 0.0;  // f >= min(fa, fb) on [a, b]
+  auto g = [&](double p) { return f(p) - threshold; };
+  if (fa < threshold && fb < threshold) {
+    const auto top = boost::math::tools::brent_find_minima([&](double p) { return -f(p); }, a, b, 52);
+    if (-top.second < threshold) return b - a;
+    return (methods::solve_bracketed(g, a, top.first, "coverage crossing") - a) +
+           (b - methods::solve_bracketed(g, top.first, b, "coverage crossing"));
+  }
+  if (fa < threshold) return methods::solve_bracketed(g, a, b, "coverage crossing") - a;
+  return b - methods::solve_bracketed(g, a, b, "coverage crossing");
+}
+
+}  // namespace
+
 BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, double p_hi, double threshold) {
   BelowMeasure out;
   if (!table.supported) return {nan, false};
@@ -321,65 +344,37 @@ BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, dou
   for (std::size_t k = 0; k + 1 < ends.size(); ++k) {
     const double a = ends[k], b = ends[k + 1];
     const double mid = 0.5 * (a + b);
+    // The covered run on the segment's interior: by binary search for
+    // monotone tables, else by a scan (which may find gaps).
+    int first = 1, last = 0;  // empty
+    CoveredSet covered(table.monotone ? 0 : n);
     if (table.monotone) {
       const auto* lo = table.lower.data();
       const auto* up = table.upper.data();
       const std::size_t size = table.lower.size();
-      const int first = static_cast<int>(std::lower_bound(up, up + size, mid) - up);     // first U_x >= mid
-      const int last = static_cast<int>(std::upper_bound(lo, lo + size, mid) - lo) - 1;  // last L_x <= mid
-      auto f = [&](double p) { return run_probability(first, last, n, p); };
-      const double fa = f(a), fb = f(b);
-      if (fa >= threshold && fb >= threshold) continue;  // unimodal: f >= min(fa, fb) on [a, b]
-      auto g = [&](double p) { return f(p) - threshold; };
-      if (fa < threshold && fb < threshold) {
-        // Both ends below: the segment is wholly below unless its maximum rises above.
-        const auto top = boost::math::tools::brent_find_minima([&](double p) { return -f(p); }, a, b, 52);
-        const double pm = top.first, fm = -top.second;
-        if (fm < threshold) {
-          out.measure += b - a;
-        } else {
-          const double r1 = methods::solve_bracketed(g, a, pm, "coverage crossing");
-          const double r2 = methods::solve_bracketed(g, pm, b, "coverage crossing");
-          out.measure += (r1 - a) + (b - r2);
-        }
-      } else if (fa < threshold) {
-        out.measure += methods::solve_bracketed(g, a, b, "coverage crossing") - a;
-      } else {
-        out.measure += b - methods::solve_bracketed(g, a, b, "coverage crossing");
-      }
+      first = static_cast<int>(std::lower_bound(up, up + size, mid) - up);     // first U_x >= mid
+      last = static_cast<int>(std::upper_bound(lo, lo + size, mid) - lo) - 1;  // last L_x <= mid
     } else {
-      CoveredSet covered(n);
       for (int x = 0; x <= n; ++x) {
         const std::size_t i = static_cast<std::size_t>(x);
         if (table.lower[i] <= mid && mid <= table.upper[i]) covered.set(x, true);
       }
-      if (covered.contiguous()) {
-        const int first = covered.empty() ? 1 : covered.first();
-        const int last = covered.empty() ? 0 : covered.last();
-        auto g = [&](double p) { return run_probability(first, last, n, p) - threshold; };
-        const double ga = g(a), gb = g(b);
-        if (ga >= 0 && gb >= 0) continue;
-        if (ga < 0 && gb < 0) {
-          const auto top = boost::math::tools::brent_find_minima([&](double p) { return -g(p); }, a, b, 52);
-          if (-top.second < 0)
-            out.measure += b - a;
-          else
-            out.measure += (methods::solve_bracketed(g, a, top.first, "coverage crossing") - a) +
-                           (b - methods::solve_bracketed(g, top.first, b, "coverage crossing"));
-        } else if (ga < 0) {
-          out.measure += methods::solve_bracketed(g, a, b, "coverage crossing") - a;
-        } else {
-          out.measure += b - methods::solve_bracketed(g, a, b, "coverage crossing");
-        }
-      } else {
-        // A covered set with gaps need not be unimodal: sampled, and flagged.
-        out.approximate = true;
-        constexpr int points = 65;
-        int below = 0;
-        for (int i = 0; i < points; ++i)
-          if (set_probability(covered, a + (b - a) * (i + 0.5) / points) < threshold) ++below;
-        out.measure += (b - a) * below / points;
+      if (covered.contiguous() && !covered.empty()) {
+        first = covered.first();
+        last = covered.last();
       }
+    }
+    if (table.monotone || covered.contiguous()) {
+      out.measure += unimodal_measure_below([&](double p) { return run_probability(first, last, n, p); }, a,
+                                            b, threshold);
+    } else {
+      // A covered set with gaps need not be unimodal: sampled, and flagged.
+      out.approximate = true;
+      constexpr int points = 65;
+      int below = 0;
+      for (int i = 0; i < points; ++i)
+        if (set_probability(covered, a + (b - a) * (i + 0.5) / points) < threshold) ++below;
+      out.measure += (b - a) * below / points;
     }
   }
   return out;

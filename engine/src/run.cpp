@@ -46,6 +46,18 @@ std::vector<Combo> combos_of(const Scenario& s) {
 
 IntervalTable table_for(const Combo& c, int n) { return build_table(*c.method, n, c.level, c.side); }
 
+/// Every combo's table at n, in parallel. Isolated, so that the waiting
+/// thread never picks up another chunk (which might wait on the same row's
+/// once_flag) while it waits for the loop.
+RowTables build_row(const std::vector<Combo>& combos, int n) {
+  RowTables tables(combos.size());
+  tbb::this_task_arena::isolate([&] {
+    tbb::parallel_for(std::size_t{0}, combos.size(),
+                      [&](std::size_t c) { tables[c] = table_for(combos[c], n); });
+  });
+  return tables;
+}
+
 /// Fills a chunk's results from prebuilt tables (tables[i] for row n_begin + i).
 ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk,
                                 const std::vector<const RowTables*>& tables) {
@@ -277,16 +289,7 @@ class RowCache {
       if (!slot) slot = std::make_shared<Entry>();
       entry = slot;
     }
-    std::call_once(entry->once, [&] {
-      entry->tables.resize(combos_.size());
-      // Isolated, so that this thread never picks up another chunk (which
-      // might wait on this very once_flag) while it waits for the loop.
-      tbb::this_task_arena::isolate([&] {
-        tbb::parallel_for(std::size_t{0}, combos_.size(), [&](std::size_t c) {
-          entry->tables[c] = table_for(combos_[c], scenario_.n[n_index]);
-        });
-      });
-    });
+    std::call_once(entry->once, [&] { entry->tables = build_row(combos_, scenario_.n[n_index]); });
     return &entry->tables;
   }
 
@@ -328,14 +331,7 @@ class SharedRowCache {
       if (slot->users++ == 0) idle_.remove({model, n_index});
       entry = slot;
     }
-    std::call_once(entry->once, [&] {
-      entry->tables.resize(combos_.size());
-      tbb::this_task_arena::isolate([&] {
-        tbb::parallel_for(std::size_t{0}, combos_.size(), [&](std::size_t c) {
-          entry->tables[c] = table_for(combos_[c], scenario_.n[n_index]);
-        });
-      });
-    });
+    std::call_once(entry->once, [&] { entry->tables = build_row(combos_, scenario_.n[n_index]); });
     return &entry->tables;
   }
 

@@ -20,6 +20,22 @@ const char* const coverage_caution =
     "interval contains the truth. A method choice for regulated or clinical work follows the "
     "applicable guidance and a qualified statistician's review.";
 
+void write_text_atomically(const std::string& path, const std::string& text) {
+  const fs::path parent = fs::path(path).parent_path();
+  if (!parent.empty() && !fs::is_directory(parent))
+    throw InputError(path, "its folder " + parent.string() + " does not exist");
+  const std::string temp = path + ".partial";
+  {
+    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
+    if (!out) throw InputError(temp, "cannot write");
+    out << text;
+    if (!out.flush()) throw InputError(temp, "cannot write");
+  }
+  std::error_code ec;
+  fs::rename(temp, path, ec);
+  if (ec) throw InputError(path, "cannot rename the finished file into place: " + ec.message());
+}
+
 std::string wrap_text(const std::string& text, std::size_t width) {
   std::string out, line;
   std::size_t start = 0;
@@ -55,22 +71,6 @@ std::string num(double v, int digits = 6) {
 std::string pct(double v) {
   if (std::isnan(v)) return "-";
   return fmt::format("{:.2f}", 100 * v);
-}
-
-void write_atomically(const std::string& path, const std::string& text) {
-  const fs::path parent = fs::path(path).parent_path();
-  if (!parent.empty() && !fs::is_directory(parent))
-    throw InputError(path, "its folder " + parent.string() + " does not exist");
-  const std::string temp = path + ".partial";
-  {
-    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
-    if (!out) throw InputError(temp, "cannot write");
-    out << text;
-    if (!out.flush()) throw InputError(temp, "cannot write");
-  }
-  std::error_code ec;
-  fs::rename(temp, path, ec);
-  if (ec) throw InputError(path, "cannot rename the finished file into place: " + ec.message());
 }
 
 }  // namespace
@@ -212,9 +212,9 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
   md += "\nPer-n figures are in the CSV summary beside this file.\n";
 
   std::vector<std::string> paths = {prefix + "-summary.csv", prefix + "-ranking.csv", prefix + "-summary.md"};
-  write_atomically(paths[0], csv);
-  write_atomically(paths[1], rcsv);
-  write_atomically(paths[2], md);
+  write_text_atomically(paths[0], csv);
+  write_text_atomically(paths[1], rcsv);
+  write_text_atomically(paths[2], md);
   return paths;
 }
 

@@ -3,6 +3,7 @@
 // message naming file, line and key or the option, and no output written.
 #include "support.hpp"
 
+#include "cli_call.hpp"
 #include "covergrid/cli/cli.hpp"
 
 #include <catch2/catch.hpp>
@@ -17,32 +18,19 @@
 #include <sstream>
 
 namespace fs = std::filesystem;
+using covergrid::test::call;
 using covergrid::test::ScratchDir;
+using covergrid::test::slurp;
 
 namespace {
 
-struct Result {
-  int status;
-  std::string out, err;
-};
-
-Result call(const std::vector<std::string>& args) {
-  std::ostringstream out, err;
-  const int status = covergrid::cli::run_cli(args, out, err);
-  return {status, out.str(), err.str()};
-}
-
-std::string slurp(const fs::path& p) {
-  std::ifstream in(p);
-  return std::string(std::istreambuf_iterator<char>(in), {});
-}
-
 /// Runs the built executable in `dir` with `args`; stdin closed.
-Result exe(const fs::path& dir, const std::string& args) {
+covergrid::test::CliResult exe(const fs::path& dir, const std::string& args) {
   const std::string cmd =
       fmt::format("cd '{}' && '{}' {} >cli.out 2>cli.err </dev/null", dir.string(), COVERGRID_EXE, args);
   const int raw = std::system(cmd.c_str());
-  Result r{WIFEXITED(raw) ? WEXITSTATUS(raw) : -1, slurp(dir / "cli.out"), slurp(dir / "cli.err")};
+  covergrid::test::CliResult r{WIFEXITED(raw) ? WEXITSTATUS(raw) : -1, slurp(dir / "cli.out"),
+                               slurp(dir / "cli.err")};
   fs::remove(dir / "cli.out");
   fs::remove(dir / "cli.err");
   return r;

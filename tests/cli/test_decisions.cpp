@@ -2,6 +2,7 @@
 // verdict tables, bad input (exit 2, nothing written).
 #include "support.hpp"
 
+#include "cli_call.hpp"
 #include "covergrid/cli/cli.hpp"
 #include "covergrid/output/hdf5.hpp"
 #include "covergrid/output/rank.hpp"
@@ -14,27 +15,11 @@
 #include <sstream>
 
 namespace fs = std::filesystem;
+using covergrid::test::call;
 using covergrid::test::ScratchDir;
+using covergrid::test::slurp;
 
-namespace {
-
-struct Result {
-  int status;
-  std::string out, err;
-};
-
-Result call(const std::vector<std::string>& args) {
-  std::ostringstream out, err;
-  const int status = covergrid::cli::run_cli(args, out, err);
-  return {status, out.str(), err.str()};
-}
-
-std::string slurp(const fs::path& p) {
-  std::ifstream in(p);
-  return std::string(std::istreambuf_iterator<char>(in), {});
-}
-
-}  // namespace
+namespace {}  // namespace
 
 TEST_CASE("audit exit codes follow the verdict", "[cli][audit]") {
   const auto holds =

@@ -7,6 +7,7 @@
 #include "e2e.hpp"
 #include "support.hpp"
 
+#include "cli_call.hpp"
 #include "covergrid/cli/cli.hpp"
 #include "covergrid/output/hdf5.hpp"
 
@@ -18,6 +19,8 @@
 #include <sstream>
 
 namespace fs = std::filesystem;
+using covergrid::test::call;
+using covergrid::test::slurp;
 namespace o = covergrid::output;
 using namespace covergrid::test;
 
@@ -67,22 +70,6 @@ id = "mid-p"
 cube = "s.h5"
 tables = "s"
 )";
-
-struct Result {
-  int status;
-  std::string out, err;
-};
-
-Result call(const std::vector<std::string>& args) {
-  std::ostringstream out, err;
-  const int status = covergrid::cli::run_cli(args, out, err);
-  return {status, out.str(), err.str()};
-}
-
-std::string slurp(const fs::path& p) {
-  std::ifstream in(p);
-  return std::string(std::istreambuf_iterator<char>(in), {});
-}
 
 fs::path scenario_in(const fs::path& dir, const std::string& text) {
   fs::create_directories(dir);

@@ -1,5 +1,10 @@
 // The SVG writer: escaping (XML 1.0 character rules), exact number text that
 // reads back bit for bit, scales and ticks, and well-formed elements.
+// Sources of the expected values: the characters XML allows are those of
+// XML 1.0 (Fifth Edition, W3C 2008), section 2.2 "Characters"; the UTF-8
+// byte forms, overlong and surrogate rules are RFC 3629, sections 3 and 4;
+// pixel positions are the linear (or logit) map of each test's stated domain
+// onto its stated range, worked out by hand from those numbers.
 #include "covergrid/output/svg.hpp"
 
 #include <catch2/catch.hpp>

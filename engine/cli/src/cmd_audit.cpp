@@ -3,6 +3,7 @@
 // some inconclusive (simulated claims).
 #include "commands.hpp"
 #include "covergrid/engine/audit.hpp"
+#include "covergrid/output/tables.hpp"
 #include "covergrid/output/verdicts.hpp"
 #include "covergrid/scenarios/claims.hpp"
 
@@ -90,7 +91,7 @@ int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out) {
   if (a.output.empty())
     out << table;
   else
-    write_file_atomically(a.output, table);
+    output::write_text_atomically(a.output, table);
   bool refuted = false, inconclusive = false;
   for (const auto& v : verdicts) {
     refuted |= v.outcome == engine::Outcome::refuted;

@@ -44,8 +44,6 @@ std::pair<double, double> parse_p_range(const std::string& text, const std::stri
 methods::Side parse_side_option(const std::string& text, const std::string& option);
 /// A level in (0, 1).
 void check_level(double level, const std::string& option);
-/// Writes `text` to `path` under a temporary name and renames it into place.
-void write_file_atomically(const std::string& path, const std::string& text);
 
 /// A CLI11 check for an integer option in [lo, hi].
 CLI::Validator integer_in(long lo, long hi);

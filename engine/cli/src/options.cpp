@@ -8,8 +8,6 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdlib>
-#include <filesystem>
-#include <fstream>
 
 namespace covergrid::cli {
 
@@ -131,23 +129,6 @@ methods::Side parse_side_option(const std::string& text, const std::string& opti
 
 void check_level(double level, const std::string& option) {
   if (!(level > 0 && level < 1)) throw InputError(option, fmt::format("{:g} is outside (0, 1)", level));
-}
-
-void write_file_atomically(const std::string& path, const std::string& text) {
-  namespace fs = std::filesystem;
-  const fs::path parent = fs::path(path).parent_path();
-  if (!parent.empty() && !fs::is_directory(parent))
-    throw InputError(path, "its folder " + parent.string() + " does not exist");
-  const std::string temp = path + ".partial";
-  {
-    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
-    if (!out) throw InputError(path, "cannot be written");
-    out << text;
-    if (!out.flush()) throw InputError(path, "cannot be written");
-  }
-  std::error_code ec;
-  fs::rename(temp, path, ec);
-  if (ec) throw InputError(path, "cannot rename the finished file into place: " + ec.message());
 }
 
 CLI::Validator integer_in(long lo, long hi) {

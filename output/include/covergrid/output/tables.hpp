@@ -35,6 +35,11 @@ std::string headline(const CubeReader& cube);
 /// The cautions every report and table carries.
 extern const char* const coverage_caution;
 
+/// Writes `text` to `path` under the temporary name PATH.partial and renames
+/// it into place, so a failure never leaves a partial file; InputError (exit
+/// 2) for a missing folder or an unwritable path.
+void write_text_atomically(const std::string& path, const std::string& text);
+
 /// `text` broken into lines of at most `width` characters at spaces (for the
 /// terminal), ending with a newline.
 std::string wrap_text(const std::string& text, std::size_t width = 78);
