@@ -3,6 +3,7 @@
 /// (n, p) in one pass over the pmf window, the continuous-p infimum of
 /// coverage, and the exact mean coverage over a p-range.
 #include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/metrics.hpp"
 
@@ -13,14 +14,6 @@
 namespace covergrid::engine {
 
 using CellMetrics = std::array<double, metric_count>;
-
-/// Decisions against a coverage threshold (audit, plan) count a value within
-/// this much below it as meeting it: limits are solved to ~1e-15 in p and
-/// coverage sums carry rounding of a few 1e-15, so exact methods whose
-/// infimum equals nominal in theory (one-sided Clopper-Pearson) come out at
-/// nominal - 2e-15; 1e-10 is far above that noise and far below any
-/// tolerance a claim states.
-inline constexpr double coverage_decision_slack = 1e-10;
 
 /// Every metric of `table` at true proportion p, from the window of Bin(n, p).
 /// Coverage uses the closed interval [L, U]. An unsupported table gives NaN.
