@@ -314,7 +314,21 @@ Verdict audit_claim(const Claim& c, int threads) {
   if (!(c.p_lo >= 0 && c.p_hi <= 1 && c.p_lo <= c.p_hi))
     throw InputError(where, "its p range is not inside [0, 1]");
   if (!(c.tolerance >= 0)) throw InputError(where, "tolerance must not be negative");
-  return c.replicates > 0 ? audit_simulated(c, threads) : audit_exact(c, threads);
+  if (c.replicates == 0) return audit_exact(c, threads);
+  Verdict v = audit_simulated(c, threads);
+  // Claims are binomial, whose coverage has exact sums: an inconclusive
+  // simulation is settled at once by the exact engine, and the output says so
+  // instead of only asking for more replicates. (A model without exact sums
+  // would skip this.)
+  if (v.outcome == Outcome::inconclusive) {
+    const Verdict e = audit_exact(c, threads);
+    v.exact_decided = true;
+    v.exact_outcome = e.outcome;
+    v.exact_worst_n = e.worst_n;
+    v.exact_worst_p = e.worst_p;
+    v.exact_worst_coverage = e.worst_coverage;
+  }
+  return v;
 }
 
 }  // namespace covergrid::engine

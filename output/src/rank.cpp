@@ -1,5 +1,6 @@
 #include "covergrid/output/rank.hpp"
 
+#include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/error.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/monte_carlo.hpp"
@@ -27,15 +28,27 @@ const char* criterion_name(RankCriterion c) {
   return "?";
 }
 
+bool ranks_before(RankCriterion c, const RankStanding& a, const RankStanding& b) {
+  switch (c) {
+    case RankCriterion::shortest:
+      if (a.eligible != b.eligible) return a.eligible;
+      return a.eligible ? a.mean_width < b.mean_width : a.worst_coverage > b.worst_coverage;
+    case RankCriterion::closest:
+      return a.rms_deviation < b.rms_deviation;
+    case RankCriterion::safest:
+      return a.worst_coverage > b.worst_coverage;
+  }
+  return false;
+}
+
 std::string criterion_text(RankCriterion c, double tolerance, bool simulated) {
   const char* worst = simulated ? "smallest simulated coverage on the grid" : "exact infimum of coverage";
   switch (c) {
     case RankCriterion::shortest:
       return fmt::format(
-          "shortest mean width among the methods whose {} stays at or above nominal - {:g}; the others "
-          "follow, "
-          "by worst coverage",
-          worst, tolerance);
+          "shortest mean width among the methods whose {} meets {} (within {:g}, the numerical slack "
+          "every command shares); the others follow, by worst coverage",
+          worst, engine::threshold_words(tolerance), engine::coverage_decision_slack);
     case RankCriterion::closest:
       return "smallest mean RMS deviation of coverage from nominal over the grid's p";
     case RankCriterion::safest:
@@ -122,20 +135,12 @@ std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& o
             e.mean_coverage /= k;
             e.rms_deviation /= k;
             e.mean_width /= k;
-            e.eligible = e.worst_coverage >= threshold;
+            e.eligible = engine::meets_coverage(e.worst_coverage, threshold);
             g.entries.push_back(e);
           }
           auto order = [&](const RankEntry& a, const RankEntry& b) {
-            switch (options.criterion) {
-              case RankCriterion::shortest:
-                if (a.eligible != b.eligible) return a.eligible;
-                return a.eligible ? a.mean_width < b.mean_width : a.worst_coverage > b.worst_coverage;
-              case RankCriterion::closest:
-                return a.rms_deviation < b.rms_deviation;
-              case RankCriterion::safest:
-                return a.worst_coverage > b.worst_coverage;
-            }
-            return false;
+            return ranks_before(options.criterion, {a.eligible, a.worst_coverage, a.mean_width, a.rms_deviation},
+                                {b.eligible, b.worst_coverage, b.mean_width, b.rms_deviation});
           };
           std::stable_sort(g.entries.begin(), g.entries.end(), order);
           for (std::size_t i = 0; i < g.entries.size(); ++i) g.entries[i].rank = static_cast<int>(i) + 1;
@@ -177,7 +182,9 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
   std::size_t width = 6;
   for (const auto& m : cube.methods) width = std::max(width, m.size());
   const bool simulated = !groups.empty() && groups.front().simulated;
-  s += fmt::format("Criterion: {}.\n", criterion_text(options.criterion, options.tolerance, simulated));
+  s += wrap_text(fmt::format("Criterion: {}.", criterion_text(options.criterion, options.tolerance, simulated)),
+                 100);
+  const std::string below_mark = fmt::format("[below {}] ", engine::threshold_words(options.tolerance));
   for (const auto& g : groups) {
     s += fmt::format("\n{} model, {}, nominal {:g} %, n = {}..{} ({} values){}\n", cube.models[g.model],
                      cube.sides[g.side], 100 * cube.levels[g.level], g.n_lo, g.n_hi, g.n_count,
@@ -190,9 +197,20 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
       if (e.has_pair) pair = fmt::format("{:+.5f} +/- {:.5f}", e.pair_difference, e.pair_se);
       s += fmt::format("  {:>4}  {:<{}}  {:>10.6f}  {:>7}  {:>10.6f}  {:>10.6f}  {:>10.6f}  {}{}\n", e.rank,
                        cube.methods[e.method], width, e.worst_coverage, e.worst_n, e.mean_coverage,
-                       e.rms_deviation, e.mean_width, e.eligible ? "" : "[below nominal - tolerance] ", pair);
+                       e.rms_deviation, e.mean_width, e.eligible ? "" : below_mark, pair);
     }
   }
+  s += '\n';
+  s += wrap_text(
+      fmt::format("Columns: rank = order under the criterion; worst cov = {} at the band's worst n (at n); "
+                  "mean cov = {}, averaged over the band's n; rms dev = root-mean-square deviation of grid "
+                  "coverage from nominal, averaged over n; mean width = expected width (clipped limits), "
+                  "averaged over the grid's p and the band's n; [below {}] marks a method whose worst "
+                  "coverage falls below that threshold.",
+                  simulated ? "the smallest simulated coverage on the p grid" : "the exact infimum of coverage over the continuous p range",
+                  simulated ? "mean simulated coverage over the p grid" : "exact mean coverage over the p range (uniform p)",
+                  engine::threshold_words(options.tolerance)),
+      100);
   if (simulated)
     s += "\nPaired differences re-draw the run's own samples (common random numbers); +/- is one standard "
          "error\n"

@@ -1,6 +1,8 @@
 #include "covergrid/output/tables.hpp"
 
+#include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/error.hpp"
+#include "covergrid/output/rank.hpp"
 
 #include <fmt/format.h>
 
@@ -13,6 +15,11 @@
 namespace covergrid::output {
 
 namespace fs = std::filesystem;
+
+const char* const ranking_order_text =
+    "Order: the methods whose worst coverage meets nominal (within 1e-10, the numerical slack every "
+    "command shares) come first, shortest mean width first; the others follow, largest worst coverage "
+    "first. This is `covergrid rank --criterion shortest` over the whole n range as one band.";
 
 const char* const coverage_caution =
     "Coverage is a long-run property of a procedure: the share of intervals, over repeated "
@@ -114,10 +121,13 @@ std::vector<RankingRow> ranking(const CubeReader& cube) {
           r.rms_deviation /= k;
           r.share_below /= k;
           r.mean_width /= k;
+          r.meets_nominal = engine::meets_coverage(r.worst_inf, cube.levels[l]);
           group.push_back(r);
         }
         std::stable_sort(group.begin(), group.end(), [](const RankingRow& a, const RankingRow& b) {
-          return a.rms_deviation < b.rms_deviation;
+          return ranks_before(RankCriterion::shortest,
+                              {a.meets_nominal, a.worst_inf, a.mean_width, a.rms_deviation},
+                              {b.meets_nominal, b.worst_inf, b.mean_width, b.rms_deviation});
         });
         for (std::size_t i = 0; i < group.size(); ++i) group[i].rank = static_cast<int>(i) + 1;
         out.insert(out.end(), group.begin(), group.end());
@@ -190,10 +200,8 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
           : "Coverage figures are Monte Carlo estimates (see the cube's /mc group for standard errors).");
   md += std::string("> ") + coverage_caution + "\n\n";
   md +=
-      "## Standing of the methods over the whole n range\n\n"
-      "Ordered by the mean over n of the RMS deviation of grid coverage from nominal (closest first). "
-      "*Worst* is the smallest exact infimum of coverage over the continuous p range, at any n "
-      "(for a simulated-only cube: the smallest simulated grid coverage).\n";
+      "## Standing of the methods over the whole n range\n\n" +
+      ranking_footnote(cube.has_exact()) + "\n";
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
       for (std::size_t l = 0; l < cube.levels.size(); ++l) {
@@ -201,13 +209,14 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
                           num(100 * cube.levels[l]));
         md +=
             "| # | method | worst (%) | at n | mean coverage (%) | RMS dev. (pts) | p below nominal (%) | "
-            "mean width |\n"
-            "|---:|---|---:|---:|---:|---:|---:|---:|\n";
+            "mean width | |\n"
+            "|---:|---|---:|---:|---:|---:|---:|---:|---|\n";
         for (const auto& r : rank)
           if (r.model == mo && r.side == s && r.level == l)
-            md += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} |\n", r.rank, cube.methods[r.method],
-                              pct(r.worst_inf), r.worst_inf_n, pct(r.mean_coverage), pct(r.rms_deviation),
-                              pct(r.share_below), num(r.mean_width, 4));
+            md += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {:.4f} | {} |\n", r.rank,
+                              cube.methods[r.method], pct(r.worst_inf), r.worst_inf_n, pct(r.mean_coverage),
+                              pct(r.rms_deviation), pct(r.share_below), r.mean_width,
+                              r.meets_nominal ? "" : "below nominal");
       }
   md += "\nPer-n figures are in the CSV summary beside this file.\n";
 
@@ -216,6 +225,24 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
   write_text_atomically(paths[1], rcsv);
   write_text_atomically(paths[2], md);
   return paths;
+}
+
+std::string ranking_footnote(bool exact) {
+  std::string s = std::string(ranking_order_text) + " Columns: # = rank in that order; ";
+  if (exact)
+    s +=
+        "worst % = smallest exact infimum of coverage over the continuous p range, at any n; at n = the n "
+        "where it occurs; mean % = exact mean coverage over the p range (uniform p), averaged over n; ";
+  else
+    s +=
+        "worst % = smallest simulated coverage on the p grid, at any n (Monte Carlo estimate); at n = the n "
+        "where it occurs; mean % = mean simulated coverage over the p grid, averaged over n; ";
+  s +=
+      "RMS pts = root-mean-square deviation of grid coverage from nominal, in percentage points, averaged "
+      "over n; below % = share of the grid's p where coverage is below nominal, averaged over n; width = "
+      "expected interval width (clipped to [0, 1]), averaged over the grid's p and n; \"below nominal\" "
+      "marks a method whose worst coverage falls below nominal.";
+  return s;
 }
 
 std::string headline(const CubeReader& cube) {
@@ -233,19 +260,14 @@ std::string headline(const CubeReader& cube) {
                            width, "worst %", "at n", "mean %", "RMS pts", "below %", "width");
         for (const auto& r : rank)
           if (r.model == mo && r.side == s && r.level == l)
-            out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9.4f}\n", r.rank,
+            out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9.4f}{}\n", r.rank,
                                cube.methods[r.method], width, pct(r.worst_inf), r.worst_inf_n,
-                               pct(r.mean_coverage), pct(r.rms_deviation), pct(r.share_below), r.mean_width);
+                               pct(r.mean_coverage), pct(r.rms_deviation), pct(r.share_below), r.mean_width,
+                               r.meets_nominal ? "" : "  below nominal");
       }
-  if (cube.has_exact())
-    out +=
-        "\nworst = smallest exact coverage infimum over the continuous p range at any n;\n"
-        "mean = exact mean coverage over that range (uniform p), averaged over n;\n"
-        "RMS = root-mean-square deviation of grid coverage from nominal, in percentage points.\n\n";
-  else
-    out +=
-        "\nMonte Carlo estimates: worst = smallest simulated grid coverage at any n; mean = mean over the\n"
-        "grid, averaged over n; RMS = deviation of grid coverage from nominal, in percentage points.\n\n";
+  out += '\n';
+  out += wrap_text(ranking_footnote(cube.has_exact()), 100);
+  out += '\n';
   out += wrap_text(coverage_caution, 100);
   return out;
 }

@@ -26,6 +26,15 @@ std::string tail_text(const Verdict& v) {
   return "both";
 }
 
+/// The same, in words for the text table.
+std::string tail_words(const Verdict& v) {
+  const std::string t = tail_text(v);
+  if (t == "none") return "no misses";
+  if (t == "low") return "mostly intervals too low";
+  if (t == "high") return "mostly intervals too high";
+  return "on both sides";
+}
+
 std::string approach_text(int from) { return from < 0 ? "from below" : from > 0 ? "from above" : "attained"; }
 
 std::string json_string(const std::string& s) {
@@ -88,8 +97,8 @@ std::string text_block(const Claim& c, const Verdict& v) {
     s += fmt::format("  worst     n = {}: mean coverage {:.8f}\n", v.worst_n, v.worst_coverage);
   }
   s += fmt::format(
-      "  misses    {:.6f} below p (interval too low), {:.6f} above p (interval too high): {} tail\n",
-      v.worst_miss_low, v.worst_miss_high, tail_text(v));
+      "  misses    {:.6f} below p (interval too low), {:.6f} above p (interval too high): {}\n",
+      v.worst_miss_low, v.worst_miss_high, tail_words(v));
   s += fmt::format("  region    {} of {} n below {:.6g}; {:.4f} % of the (n, p) region below it{}\n",
                    v.n_below, v.n_count, v.threshold, 100 * v.share_below,
                    v.simulated ? (c.kind == ClaimKind::minimum ? " (cells whose upper bound is below)"
@@ -105,6 +114,18 @@ std::string text_block(const Claim& c, const Verdict& v) {
                          v.replicates_to_decide);
       else
         s += "  decide    an estimate sits on the threshold: more replicates would not settle it\n";
+      if (v.exact_decided) {
+        const std::string where =
+            c.kind == ClaimKind::minimum
+                ? fmt::format("n = {}, p = {:.10g}, coverage {:.8f}", v.exact_worst_n, v.exact_worst_p,
+                              v.exact_worst_coverage)
+                : fmt::format("n = {}, mean coverage {:.8f}", v.exact_worst_n, v.exact_worst_coverage);
+        s += fmt::format(
+            "  exact     exact enumeration decides this claim at once: {} (worst {}{})\n"
+            "            no more replicates are needed: audit it without --replicates\n",
+            engine::outcome_name(v.exact_outcome), where,
+            c.kind == ClaimKind::minimum && c.p_lo < c.p_hi ? "; over the continuous p range" : "");
+      }
     }
   }
   if (v.refined) s += "  note      a non-contiguous covered set was searched densely somewhere\n";
@@ -149,13 +170,13 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
     out +=
         "claim,verdict,method,level,side,about,n_from,n_to,n_count,p_lo,p_hi,tolerance,threshold,source,"
         "worst_n,worst_p,worst_from,worst_coverage,worst_miss_low,worst_miss_high,tail,n_below,share_below,"
-        "replicates,cells,lower_bound,upper_bound,replicates_to_decide\n";
+        "replicates,cells,lower_bound,upper_bound,replicates_to_decide,exact_verdict\n";
     for (std::size_t i = 0; i < claims.size(); ++i) {
       const Claim& c = claims[i];
       const Verdict& v = verdicts[i];
       auto num = [](double x) { return std::isfinite(x) ? fmt::format("{}", x) : std::string(); };
       out += fmt::format(
-          "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+          "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
           csv_field(c.name), engine::outcome_name(v.outcome), csv_field(c.method.label), num(c.level),
           methods::side_name(c.side), about_name(c.kind), c.n.front(), c.n.back(), c.n.size(), num(c.p_lo),
           num(c.p_hi), num(c.tolerance), num(v.threshold), v.simulated ? "monte-carlo" : "exact", v.worst_n,
@@ -163,7 +184,8 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
           v.simulated || c.kind == ClaimKind::mean ? std::string() : std::to_string(v.worst_from),
           num(v.worst_coverage), num(v.worst_miss_low), num(v.worst_miss_high), tail_text(v), v.n_below,
           num(v.share_below), v.replicates, v.cells, v.simulated ? num(v.lower_bound) : "",
-          v.simulated ? num(v.upper_bound) : "", v.replicates_to_decide);
+          v.simulated ? num(v.upper_bound) : "", v.replicates_to_decide,
+          v.exact_decided ? engine::outcome_name(v.exact_outcome) : "");
     }
     return out;
   }
@@ -195,9 +217,10 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
     if (v.simulated)
       out += fmt::format(
           "      \"monte_carlo\": {{\"replicates\": {}, \"cells\": {}, \"seed\": {}, \"lower_bound\": {}, "
-          "\"upper_bound\": {}, \"correction\": {}, \"replicates_to_decide\": {}}},\n",
+          "\"upper_bound\": {}, \"correction\": {}, \"replicates_to_decide\": {}, \"exact_verdict\": {}}},\n",
           v.replicates, v.cells, c.seed, json_number(v.lower_bound), json_number(v.upper_bound),
-          json_string(v.correction), v.replicates_to_decide);
+          json_string(v.correction), v.replicates_to_decide,
+          v.exact_decided ? fmt::format("\"{}\"", engine::outcome_name(v.exact_outcome)) : "null");
     out += fmt::format("      \"refined\": {}\n    }}{}\n", v.refined ? "true" : "false",
                        i + 1 < claims.size() ? "," : "");
   }

@@ -126,12 +126,14 @@ Command add_audit_command(CLI::App& app) {
   audit->add_option("--format", a->format, "text (default), csv or json");
   audit->add_option("-o,--output", a->output, "write the verdict table to this file instead of stdout");
   audit->add_option("--threads", a->threads, "worker threads (default: all cores)")
-      ->check(integer_in(1, 4096));
+      ->check(integer_in(1, 4096))
+      ->type_name("1..4096");
   audit->footer(
       "Exact claims (the default) are decided with the exact continuous infimum (or exact mean) of the "
       "binomial\n"
       "coverage; simulated claims with Clopper-Pearson bounds made simultaneous by Bonferroni over every "
-      "cell.");
+      "cell.\n\n" +
+      output::wrap_text(output::coverage_caution, 100));
   return {audit, [a, audit](std::ostream& out, std::ostream&) { return cmd_audit(*a, *audit, out); }};
 }
 

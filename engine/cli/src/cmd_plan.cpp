@@ -143,7 +143,8 @@ Command add_plan_command(CLI::App& app) {
   plan->add_option("--max-margin", a->max_margin, "largest margin of error over every outcome <= M");
   plan->add_option("--format", a->format, "text (default) or csv");
   plan->add_option("--threads", a->threads, "worker threads (default: all cores)")
-      ->check(integer_in(1, 4096));
+      ->check(integer_in(1, 4096))
+      ->type_name("1..4096");
   return {plan, [a, plan](std::ostream& out, std::ostream&) { return cmd_plan(*a, *plan, out); }};
 }
 

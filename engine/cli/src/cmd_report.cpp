@@ -54,7 +54,8 @@ Command add_report_command(CLI::App& app) {
       ->add_option("--max-bins", a->max_bins,
                    "heat-map cells per axis (default 80); larger grids are binned down, each cell showing "
                    "the minimum coverage over its grid points")
-      ->check(integer_in(10, 120));
+      ->check(integer_in(10, 120))
+      ->type_name("10..120");
   return {report, [a](std::ostream& out, std::ostream&) { return cmd_report(*a, out); }};
 }
 

@@ -246,7 +246,8 @@ Command add_run_command(CLI::App& app) {
   auto* run =
       app.add_subcommand("run", "Evaluate every method on a scenario's grid; write the cube and tables");
   run->add_option("SCENARIO", a->scenario_file, "scenario file (TOML); without it, the bundled demo");
-  run->add_option("--threads", a->threads, "worker threads (default: all cores)")->check(integer_in(1, 4096));
+  run->add_option("--threads", a->threads, "worker threads (default: all cores)")->check(integer_in(1, 4096))
+      ->type_name("1..4096");
   run->add_flag("--quiet", a->quiet, "no progress display");
   run->add_flag("--overwrite", a->overwrite,
                 "replace an existing cube or unfinished run of another scenario");

@@ -45,7 +45,8 @@ methods::Side parse_side_option(const std::string& text, const std::string& opti
 /// A level in (0, 1).
 void check_level(double level, const std::string& option);
 
-/// A CLI11 check for an integer option in [lo, hi].
+/// A CLI11 check for an integer option in [lo, hi]; it adds nothing to the
+/// help text, so give the option type_name("LO..HI").
 CLI::Validator integer_in(long lo, long hi);
 
 }  // namespace covergrid::cli

@@ -140,7 +140,7 @@ CLI::Validator integer_in(long lo, long hi) {
                    ? std::string()
                    : "must be an integer from " + std::to_string(lo) + " to " + std::to_string(hi);
       },
-      "INT");
+      "");
 }
 
 }  // namespace covergrid::cli

@@ -73,6 +73,13 @@ struct Verdict {
   std::uint64_t replicates = 0;
   std::string correction;
   std::uint64_t replicates_to_decide = 0;
+  /// A simulated claim that comes out inconclusive is also decided by the
+  /// exact engine when the model has exact sums (the binomial): its outcome
+  /// and worst case, so the output can say that no more replicates are needed.
+  bool exact_decided = false;
+  Outcome exact_outcome = Outcome::holds;
+  int exact_worst_n = 0;
+  double exact_worst_p = 0, exact_worst_coverage = 0;
 };
 
 /// Decides a claim. `threads` = 0 uses every core. Throws InputError for a

@@ -17,6 +17,21 @@ enum class RankCriterion {
 };
 
 const char* criterion_name(RankCriterion c);
+
+/// What the ordering looks at for one method in one group.
+struct RankStanding {
+  bool eligible = true;       // worst coverage meets nominal - tolerance (engine::meets_coverage)
+  double worst_coverage = 0;  // exact infimum (or simulated grid minimum), worst over the n considered
+  double mean_width = 0;
+  double rms_deviation = 0;
+};
+
+/// The one ordering every table uses (`rank`, the run/inspect headline, the
+/// summary tables, the report): true when `a` ranks before `b` under `c`.
+/// shortest: eligible methods first, by mean width; the others after them,
+/// by worst coverage (largest first). closest: by RMS deviation. safest: by
+/// worst coverage, largest first.
+bool ranks_before(RankCriterion c, const RankStanding& a, const RankStanding& b);
 /// One sentence stating the criterion, for tables and reports.
 std::string criterion_text(RankCriterion c, double tolerance, bool simulated);
 

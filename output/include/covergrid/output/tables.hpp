@@ -12,6 +12,7 @@ namespace covergrid::output {
 struct RankingRow {
   std::size_t model, side, level, method;
   int rank = 0;
+  bool meets_nominal = true;  // worst_inf meets nominal under engine::meets_coverage
   double worst_inf = 0;  // min over n of the continuous infimum
   std::int64_t worst_inf_n = 0;
   double mean_coverage = 0;  // mean over n of the exact uniform mean coverage
@@ -20,16 +21,27 @@ struct RankingRow {
   double mean_width = 0;     // mean over n of the grid mean width
 };
 
-/// Ranking per (model, side, level): methods ordered by mean RMS deviation of
-/// coverage from nominal (closest first); methods that do not define a side
-/// are left out.
+/// Ranking per (model, side, level) over the whole n range, in the order
+/// `covergrid rank --criterion shortest --bands <all n>` gives (ranks_before
+/// in rank.hpp): the methods whose worst coverage meets nominal first, by
+/// mean width, then the others by worst coverage. Methods that do not define
+/// a side are left out.
 std::vector<RankingRow> ranking(const CubeReader& cube);
 
 /// Writes <prefix>-summary.csv, <prefix>-ranking.csv and <prefix>-summary.md
 /// (each to a temporary name, renamed when complete); returns their paths.
 std::vector<std::string> write_tables(const CubeReader& cube, const std::string& prefix);
 
-/// The headline: the ranking as an aligned text table, with the cautions.
+/// The sentence that says how ranking() orders the methods (headline, tables, report).
+extern const char* const ranking_order_text;
+
+/// The order sentence and one explanation per column of the ranking table
+/// (headline, Markdown summary, report); `exact` picks the exact or the
+/// simulated wording.
+std::string ranking_footnote(bool exact);
+
+/// The headline: the ranking as an aligned text table, a footnote on every
+/// column, and the cautions.
 std::string headline(const CubeReader& cube);
 
 /// The cautions every report and table carries.
