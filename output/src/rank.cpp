@@ -139,7 +139,8 @@ std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& o
             g.entries.push_back(e);
           }
           auto order = [&](const RankEntry& a, const RankEntry& b) {
-            return ranks_before(options.criterion, {a.eligible, a.worst_coverage, a.mean_width, a.rms_deviation},
+            return ranks_before(options.criterion,
+                                {a.eligible, a.worst_coverage, a.mean_width, a.rms_deviation},
                                 {b.eligible, b.worst_coverage, b.mean_width, b.rms_deviation});
           };
           std::stable_sort(g.entries.begin(), g.entries.end(), order);
@@ -182,8 +183,8 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
   std::size_t width = 6;
   for (const auto& m : cube.methods) width = std::max(width, m.size());
   const bool simulated = !groups.empty() && groups.front().simulated;
-  s += wrap_text(fmt::format("Criterion: {}.", criterion_text(options.criterion, options.tolerance, simulated)),
-                 100);
+  s += wrap_text(
+      fmt::format("Criterion: {}.", criterion_text(options.criterion, options.tolerance, simulated)), 100);
   const std::string below_mark = fmt::format("[below {}] ", engine::threshold_words(options.tolerance));
   for (const auto& g : groups) {
     s += fmt::format("\n{} model, {}, nominal {:g} %, n = {}..{} ({} values){}\n", cube.models[g.model],
@@ -207,8 +208,10 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
                   "coverage from nominal, averaged over n; mean width = expected width (clipped limits), "
                   "averaged over the grid's p and the band's n; [below {}] marks a method whose worst "
                   "coverage falls below that threshold.",
-                  simulated ? "the smallest simulated coverage on the p grid" : "the exact infimum of coverage over the continuous p range",
-                  simulated ? "mean simulated coverage over the p grid" : "exact mean coverage over the p range (uniform p)",
+                  simulated ? "the smallest simulated coverage on the p grid"
+                            : "the exact infimum of coverage over the continuous p range",
+                  simulated ? "mean simulated coverage over the p grid"
+                            : "exact mean coverage over the p range (uniform p)",
                   engine::threshold_words(options.tolerance)),
       100);
   if (simulated)

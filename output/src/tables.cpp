@@ -2,11 +2,14 @@
 
 #include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/error.hpp"
+#include "covergrid/engine/output_location.hpp"
 #include "covergrid/output/rank.hpp"
 
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <cerrno>
+#include <cstring>
 #include <cmath>
 #include <filesystem>
 #include <fstream>
@@ -28,19 +31,28 @@ const char* const coverage_caution =
     "applicable guidance and a qualified statistician's review.";
 
 void write_text_atomically(const std::string& path, const std::string& text) {
-  const fs::path parent = fs::path(path).parent_path();
-  if (!parent.empty() && !fs::is_directory(parent))
-    throw InputError(path, "its folder " + parent.string() + " does not exist");
+  if (const std::string problem = engine::output_location_problem(path); !problem.empty())
+    throw InputError(path, problem);
   const std::string temp = path + ".partial";
   {
     std::ofstream out(temp, std::ios::binary | std::ios::trunc);
-    if (!out) throw InputError(temp, "cannot write");
+    if (!out) throw InputError(temp, std::string("cannot write: ") + std::strerror(errno));
     out << text;
-    if (!out.flush()) throw InputError(temp, "cannot write");
+    if (!out.flush()) {
+      const int e = errno;
+      out.close();
+      std::error_code ignored;
+      fs::remove(temp, ignored);
+      throw InputError(temp, std::string("cannot write: ") + std::strerror(e));
+    }
   }
   std::error_code ec;
   fs::rename(temp, path, ec);
-  if (ec) throw InputError(path, "cannot rename the finished file into place: " + ec.message());
+  if (ec) {
+    std::error_code ignored;
+    fs::remove(temp, ignored);
+    throw InputError(path, "cannot rename the finished file into place: " + ec.message());
+  }
 }
 
 std::string wrap_text(const std::string& text, std::size_t width) {
@@ -199,9 +211,7 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
           ? "Coverage figures are exact (binomial enumeration)."
           : "Coverage figures are Monte Carlo estimates (see the cube's /mc group for standard errors).");
   md += std::string("> ") + coverage_caution + "\n\n";
-  md +=
-      "## Standing of the methods over the whole n range\n\n" +
-      ranking_footnote(cube.has_exact()) + "\n";
+  md += "## Standing of the methods over the whole n range\n\n" + ranking_footnote(cube.has_exact()) + "\n";
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
       for (std::size_t l = 0; l < cube.levels.size(); ++l) {
@@ -230,18 +240,15 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
 std::string ranking_footnote(bool exact) {
   std::string s = std::string(ranking_order_text) + " Columns: # = rank in that order; ";
   if (exact)
-    s +=
-        "worst % = smallest exact infimum of coverage over the continuous p range, at any n; at n = the n "
-        "where it occurs; mean % = exact mean coverage over the p range (uniform p), averaged over n; ";
+    s += "worst % = smallest exact infimum of coverage over the continuous p range, at any n; at n = the n "
+         "where it occurs; mean % = exact mean coverage over the p range (uniform p), averaged over n; ";
   else
-    s +=
-        "worst % = smallest simulated coverage on the p grid, at any n (Monte Carlo estimate); at n = the n "
-        "where it occurs; mean % = mean simulated coverage over the p grid, averaged over n; ";
-  s +=
-      "RMS pts = root-mean-square deviation of grid coverage from nominal, in percentage points, averaged "
-      "over n; below % = share of the grid's p where coverage is below nominal, averaged over n; width = "
-      "expected interval width (clipped to [0, 1]), averaged over the grid's p and n; \"below nominal\" "
-      "marks a method whose worst coverage falls below nominal.";
+    s += "worst % = smallest simulated coverage on the p grid, at any n (Monte Carlo estimate); at n = the n "
+         "where it occurs; mean % = mean simulated coverage over the p grid, averaged over n; ";
+  s += "RMS pts = root-mean-square deviation of grid coverage from nominal, in percentage points, averaged "
+       "over n; below % = share of the grid's p where coverage is below nominal, averaged over n; width = "
+       "expected interval width (clipped to [0, 1]), averaged over the grid's p and n; \"below nominal\" "
+       "marks a method whose worst coverage falls below nominal.";
   return s;
 }
 

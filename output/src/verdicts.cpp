@@ -96,9 +96,8 @@ std::string text_block(const Claim& c, const Verdict& v) {
   } else {
     s += fmt::format("  worst     n = {}: mean coverage {:.8f}\n", v.worst_n, v.worst_coverage);
   }
-  s += fmt::format(
-      "  misses    {:.6f} below p (interval too low), {:.6f} above p (interval too high): {}\n",
-      v.worst_miss_low, v.worst_miss_high, tail_words(v));
+  s += fmt::format("  misses    {:.6f} below p (interval too low), {:.6f} above p (interval too high): {}\n",
+                   v.worst_miss_low, v.worst_miss_high, tail_words(v));
   s += fmt::format("  region    {} of {} n below {:.6g}; {:.4f} % of the (n, p) region below it{}\n",
                    v.n_below, v.n_count, v.threshold, 100 * v.share_below,
                    v.simulated ? (c.kind == ClaimKind::minimum ? " (cells whose upper bound is below)"

@@ -3,6 +3,7 @@
 #include "toml_fields.hpp"
 
 #include "covergrid/engine/error.hpp"
+#include "covergrid/engine/output_location.hpp"
 #include "covergrid/engine/random.hpp"
 #include "covergrid/engine/sha256.hpp"
 
@@ -343,19 +344,21 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   };
   s.cube_path = resolve(cube);
   s.tables_prefix = resolve(tables);
-  // A missing output folder is bad input, named here with its key and line.
-  auto check_folder = [&](const std::string& path, const char* key) {
+  // An output location that cannot be written (a missing folder, a file
+  // where a folder should be, a read-only or forbidden folder) is bad input,
+  // named here with its key and line before any work starts. The journal and
+  // the .partial files live beside the cube, so its folder covers them.
+  auto check_location = [&](const std::string& path, const char* key, const std::string& probe) {
     if (path.empty()) return;
-    const fs::path parent = fs::path(path).parent_path();
-    if (parent.empty() || fs::is_directory(parent)) return;
+    const std::string problem = engine::output_location_problem(probe);
+    if (problem.empty()) return;
     const toml::node* out_node = root.get("output");
     const toml::node* at = out_node && out_node->is_table() ? out_node->as_table()->get(key) : nullptr;
-    ctx.fail(at,
-             fmt::format("[output] {} = \"{}\": the folder {} does not exist", key, path, parent.string()));
+    ctx.fail(at, fmt::format("[output] {} = \"{}\"{}: {}", key, path, at ? "" : " (the default)", problem));
   };
-  if (check_output_folders && (!base_dir.empty() || fs::path(s.cube_path).has_parent_path())) {
-    check_folder(s.cube_path, "cube");
-    check_folder(s.tables_prefix, "tables");
+  if (check_output_folders) {
+    check_location(s.cube_path, "cube", s.cube_path);
+    check_location(s.tables_prefix, "tables", s.tables_prefix + "-summary.csv");
   }
   return s;
 }

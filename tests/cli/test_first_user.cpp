@@ -96,7 +96,8 @@ TEST_CASE("rank, audit, the headline and the tables judge nominal by one rule", 
   covergrid::output::CubeReader cube(dir.file("blaker.h5"));
   const auto inf = cube.summary("inf_coverage");
   double worst = 1;
-  for (std::size_t i = 0; i < cube.n.size(); ++i) worst = std::min(worst, inf[cube.summary_index(0, 0, 0, 0, i)]);
+  for (std::size_t i = 0; i < cube.n.size(); ++i)
+    worst = std::min(worst, inf[cube.summary_index(0, 0, 0, 0, i)]);
   CHECK(worst < 0.9);
   CHECK(worst > 0.9 - covergrid::engine::coverage_decision_slack);
 
@@ -122,7 +123,8 @@ TEST_CASE("rank, audit, the headline and the tables judge nominal by one rule", 
   CHECK(gated.out.find("nominal - 0.01") != std::string::npos);
 
   // audit: the same claim holds.
-  const auto audit = call({"audit", "--method", "blaker", "--level", "0.9", "--n", "5:50", "--p", "0.01:0.99"});
+  const auto audit =
+      call({"audit", "--method", "blaker", "--level", "0.9", "--n", "5:50", "--p", "0.01:0.99"});
   CHECK(audit.status == 0);
 
   // The headline and the Markdown table: Blaker first at 90 %, not marked.
@@ -164,7 +166,8 @@ TEST_CASE("the headline's first method is rank's first method over the whole n r
   // Every column of the headline is explained under it.
   std::string flat = demo.out;
   std::replace(flat.begin(), flat.end(), '\n', ' ');
-  for (const char* word : {"# = rank", "worst % =", "at n =", "mean % =", "RMS pts =", "below % =", "width ="})
+  for (const char* word :
+       {"# = rank", "worst % =", "at n =", "mean % =", "RMS pts =", "below % =", "width ="})
     CHECK(flat.find(word) != std::string::npos);
 }
 
@@ -201,7 +204,8 @@ TEST_CASE("help and tables read cleanly", "[cli][first-user]") {
   CHECK(audit_help.out.find("long-run property") != std::string::npos);
   CHECK(audit_help.out.find("qualified statistician") != std::string::npos);
   // The misses line names the side in words.
-  const auto audit = call({"audit", "--method", "wald", "--level", "0.95", "--n", "10:30", "--p", "0.01:0.99"});
+  const auto audit =
+      call({"audit", "--method", "wald", "--level", "0.95", "--n", "10:30", "--p", "0.01:0.99"});
   CHECK(audit.out.find(" tail\n") == std::string::npos);
   CHECK(audit.out.find("both tail") == std::string::npos);
   // The Markdown summary prints every mean width with four decimals.

@@ -2,6 +2,7 @@
 // claims file; exit 0 all hold, 3 some claim refuted, 4 none refuted but
 // some inconclusive (simulated claims).
 #include "commands.hpp"
+#include "covergrid/engine/output_location.hpp"
 #include "covergrid/engine/audit.hpp"
 #include "covergrid/output/tables.hpp"
 #include "covergrid/output/verdicts.hpp"
@@ -76,6 +77,9 @@ int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out) {
     format = output::VerdictFormat::json;
   else
     throw InputError("--format", fmt::format("\"{}\" is not one of text, csv, json", a.format));
+  if (!a.output.empty())
+    if (const std::string problem = engine::output_location_problem(a.output); !problem.empty())
+      throw InputError("-o " + a.output, problem);
   std::vector<engine::Claim> claims;
   if (!a.claims_file.empty()) {
     for (const char* opt : {"--method", "--level", "--n", "--p", "--side", "--tolerance", "--about",

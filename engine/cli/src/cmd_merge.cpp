@@ -1,6 +1,7 @@
 // covergrid merge: join the shard cubes of one scenario (run --shard K/N)
 // into the cube a single run writes, then its tables and headline.
 #include "commands.hpp"
+#include "covergrid/engine/output_location.hpp"
 #include "covergrid/output/cube.hpp"
 #include "covergrid/output/merge.hpp"
 #include "covergrid/output/tables.hpp"
@@ -23,6 +24,8 @@ struct MergeArgs {
 
 int cmd_merge(const MergeArgs& a, std::ostream& out, std::ostream& err) {
   namespace fs = std::filesystem;
+  if (const std::string problem = engine::output_location_problem(a.out); !problem.empty())
+    throw InputError("-o " + a.out, problem);
   const std::string out_dir = fs::path(a.out).parent_path().string();
   engine::Scenario scenario;
   const auto loader = [&](const std::string& text, const std::string& name) {

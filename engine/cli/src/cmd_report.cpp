@@ -1,5 +1,6 @@
 // covergrid report: the cube as one self-contained HTML page (output/report.hpp).
 #include "commands.hpp"
+#include "covergrid/engine/output_location.hpp"
 #include "covergrid/output/cube.hpp"
 #include "covergrid/output/report.hpp"
 
@@ -26,6 +27,10 @@ std::string default_html_path(const std::string& cube) {
 }
 
 int cmd_report(const ReportArgs& a, std::ostream& out) {
+  const std::string target = a.html.empty() ? default_html_path(a.cube) : a.html;
+  // Checked first: a page that cannot be written is bad input before any work.
+  if (const std::string problem = engine::output_location_problem(target); !problem.empty())
+    throw InputError(a.html.empty() ? target : "-o " + target, problem);
   const output::CubeReader cube(a.cube);
   output::ReportOptions options;
   options.n = a.n;

@@ -1,6 +1,7 @@
 // covergrid run: evaluate a scenario into its cube (resumable), with progress
 // on stderr and a clean stop on SIGINT/SIGTERM.
 #include "commands.hpp"
+#include "covergrid/engine/estimate.hpp"
 #include "covergrid/engine/run.hpp"
 #include "covergrid/engine/shard.hpp"
 #include "covergrid/output/cube.hpp"
@@ -82,13 +83,43 @@ class Progress {
 struct RunArgs {
   std::string scenario_file;
   int threads = 0;
-  bool quiet = false, overwrite = false, dry_run = false;
+  bool quiet = false, overwrite = false, dry_run = false, yes = false;
   std::string shard;  // "K/N" or empty
 };
 
+/// The estimate in one line: cells, time, data sizes.
+std::string estimate_text(const engine::RunEstimate& e) {
+  return fmt::format(
+      "{} cells to compute, {} on {} thread{} (rough; from timing {} sample chunk{} on one thread); "
+      "cube data {} uncompressed (the file is usually smaller), journal up to {} while running",
+      e.cells, engine::duration_words(e.seconds), e.threads, e.threads == 1 ? "" : "s", e.chunks_timed,
+      e.chunks_timed == 1 ? "" : "s", engine::size_words(e.cube_bytes), engine::size_words(e.journal_bytes));
+}
+
+/// The chunks this invocation computes: the shard's, or all.
+std::vector<std::size_t> chunks_of(const engine::Plan& plan, const engine::ShardSelection* shard) {
+  if (shard) return shard->chunks;
+  std::vector<std::size_t> ids(plan.chunks.size());
+  for (std::size_t i = 0; i < ids.size(); ++i) ids[i] = i;
+  return ids;
+}
+
+/// Refuses a large run (engine::RunEstimate::large) without --yes.
+void check_large(const engine::RunEstimate& e, bool yes) {
+  if (!e.large() || yes) return;
+  throw InputError(
+      "--yes",
+      fmt::format("this run is large: {} and a {} cube (the limits without --yes: {} of wall time, {} of "
+                  "cube data); check the grid, then run again with --yes to start it (or split it with "
+                  "--shard K/N)",
+                  engine::duration_words(e.seconds), engine::size_words(e.cube_bytes),
+                  engine::duration_words(engine::large_run_seconds),
+                  engine::size_words(engine::large_run_bytes)));
+}
+
 /// --dry-run: the plan, and the shard's part of it, without computing.
 int print_plan(const engine::Scenario& scenario, const engine::Plan& plan,
-               const engine::ShardSelection* shard, std::ostream& out) {
+               const engine::ShardSelection* shard, int threads, std::ostream& out) {
   std::size_t cells = 0;
   double total = 0, part = 0;
   for (const auto& c : plan.chunks) {
@@ -114,6 +145,9 @@ int print_plan(const engine::Scenario& scenario, const engine::Plan& plan,
   } else {
     out << fmt::format("  cube: {}\n", scenario.cube_path);
   }
+  const engine::RunEstimate e = engine::estimate_run(scenario, plan, chunks_of(plan, shard), threads);
+  out << "  estimate: " << estimate_text(e) << '\n';
+  if (e.large()) out << "  this is a large run: `run` will ask for --yes before it starts it\n";
   return exit_ok;
 }
 
@@ -133,15 +167,31 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
     shard = engine::ShardSelection{*spec, engine::shard_chunks(scenario, plan, *spec)};
     scenario.cube_path = engine::shard_cube_path(scenario.cube_path, *spec);
   }
-  if (a.dry_run) return print_plan(scenario, plan, shard ? &*shard : nullptr, out);
+  if (a.dry_run) return print_plan(scenario, plan, shard ? &*shard : nullptr, a.threads, out);
   const output::OutputState state =
       output::inspect_output(scenario, a.overwrite, shard ? shard->spec.label() : "all");
   if (state == output::OutputState::up_to_date) {
     if (!quiet)
       err << fmt::format("covergrid: {} is already complete for this scenario\n", scenario.cube_path);
   } else {
+    // A fresh run is estimated, and refused if large without --yes, before
+    // anything is created; a resumed one (already accepted) is estimated on
+    // what is left.
+    std::optional<engine::RunEstimate> estimate;
+    if (state != output::OutputState::resumed) {
+      estimate = engine::estimate_run(scenario, plan, chunks_of(plan, shard ? &*shard : nullptr), a.threads);
+      check_large(*estimate, a.yes);
+    }
     output::CubeWriter writer(scenario, plan, state == output::OutputState::resumed,
                               shard ? &*shard : nullptr);
+    if (!estimate) {
+      const auto done = writer.completed();
+      std::vector<std::size_t> todo;
+      for (std::size_t id : chunks_of(plan, shard ? &*shard : nullptr))
+        if (!done[id]) todo.push_back(id);
+      estimate = engine::estimate_run(scenario, plan, todo, a.threads);
+    }
+    if (!quiet) err << "covergrid: " << estimate_text(*estimate) << '\n';
     if (state == output::OutputState::resumed && !quiet)
       err << fmt::format("covergrid: resuming the unfinished run in {}\n",
                          output::journal_path(scenario.cube_path));
@@ -246,7 +296,8 @@ Command add_run_command(CLI::App& app) {
   auto* run =
       app.add_subcommand("run", "Evaluate every method on a scenario's grid; write the cube and tables");
   run->add_option("SCENARIO", a->scenario_file, "scenario file (TOML); without it, the bundled demo");
-  run->add_option("--threads", a->threads, "worker threads (default: all cores)")->check(integer_in(1, 4096))
+  run->add_option("--threads", a->threads, "worker threads (default: all cores)")
+      ->check(integer_in(1, 4096))
       ->type_name("1..4096");
   run->add_flag("--quiet", a->quiet, "no progress display");
   run->add_flag("--overwrite", a->overwrite,
@@ -256,7 +307,11 @@ Command add_run_command(CLI::App& app) {
       "compute only shard K of N (K/N, 1 <= K <= N <= chunks) into NAME.shard-K-of-N.h5 beside the "
       "cube; join the shards with covergrid merge");
   run->add_flag("--dry-run", a->dry_run,
-                "print the plan (cells, chunks, the shard's part) and compute nothing");
+                "print the plan (cells, chunks, the shard's part) and its estimated time and cube size; "
+                "compute nothing");
+  run->add_flag("--yes", a->yes,
+                "start a large run (estimated over 2 hours of wall time or 20 GB of cube data), which "
+                "is refused without it");
   return {run, [a](std::ostream& out, std::ostream& err) { return cmd_run(*a, out, err); }};
 }
 

@@ -13,7 +13,7 @@ struct RankingRow {
   std::size_t model, side, level, method;
   int rank = 0;
   bool meets_nominal = true;  // worst_inf meets nominal under engine::meets_coverage
-  double worst_inf = 0;  // min over n of the continuous infimum
+  double worst_inf = 0;       // min over n of the continuous infimum
   std::int64_t worst_inf_n = 0;
   double mean_coverage = 0;  // mean over n of the exact uniform mean coverage
   double rms_deviation = 0;  // mean over n of the grid RMS deviation from nominal

@@ -1,0 +1,48 @@
+#pragma once
+/// What a run will cost before it starts: wall time from a short calibration
+/// (a few of the plan's cheapest sample chunks timed on one thread, scaled by
+/// the shard cost model `chunk_cost` and the thread count, plus the cube's
+/// assembly at a measured rate per byte), and the size of
+/// the data it writes. `run --dry-run` prints it; `run` prints it at the start
+/// and refuses, without --yes, a run above the large-run thresholds below.
+#include "covergrid/engine/plan.hpp"
+#include "covergrid/engine/scenario.hpp"
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+namespace covergrid::engine {
+
+/// Runs estimated above either threshold need --yes: 2 hours of wall time on
+/// the threads given, or 20 GB of cube data (uncompressed). Chosen so that
+/// every bundled scenario and every interactive exploration stays below, and
+/// a mistyped grid (a 10^9-cell range) is caught before it fills a disk.
+inline constexpr double large_run_seconds = 2 * 3600.0;
+inline constexpr double large_run_bytes = 20e9;
+
+struct RunEstimate {
+  std::size_t cells = 0;           // cells still to compute
+  double seconds = 0;              // wall time on `threads` threads (rough: within ~2x)
+  double calibration_seconds = 0;  // time the calibration took
+  std::size_t chunks_timed = 0;
+  double cube_bytes = 0;     // the cube's datasets, uncompressed (the HDF5 file is usually smaller)
+  double journal_bytes = 0;  // the journal while the run is in progress (uncompressed)
+  int threads = 1;
+
+  bool large() const { return seconds > large_run_seconds || cube_bytes > large_run_bytes; }
+};
+
+/// Estimates computing the chunks of `plan` listed in `todo` (chunk ids).
+/// Times at most a few chunks, about a second in all; `threads` = 0 means
+/// every hardware thread. With [evaluate] target_se the replicates per cell
+/// grow as needed, so the time is a lower bound (the first round only).
+RunEstimate estimate_run(const Scenario& scenario, const Plan& plan, const std::vector<std::size_t>& todo,
+                         int threads);
+
+/// "about 3.2 h on 2 threads", "about 40 s on 2 threads", "under a second".
+std::string duration_words(double seconds);
+/// "1.3 GB", "830 MB", "12 kB".
+std::string size_words(double bytes);
+
+}  // namespace covergrid::engine

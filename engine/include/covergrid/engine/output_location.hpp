@@ -1,0 +1,18 @@
+#pragma once
+/// Checks an output location before any work starts: its folder exists, is a
+/// folder, and accepts a new file; the path itself is not a folder. Every
+/// command that writes (run: cube, journal, tables; report; audit -o; merge
+/// -o) calls it first, so a run never computes for an hour and then finds it
+/// cannot write.
+#include <string>
+
+namespace covergrid::engine {
+
+/// Empty when `path` can be written (created or replaced by rename in its
+/// folder); otherwise what is wrong, with the system's reason, e.g.
+/// "cannot create files in the folder out: Read-only file system" or
+/// "base.toml is a file, not a folder". Probes by creating and removing a
+/// uniquely named empty file in the folder; leaves nothing behind.
+std::string output_location_problem(const std::string& path);
+
+}  // namespace covergrid::engine

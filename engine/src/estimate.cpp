@@ -1,0 +1,114 @@
+#include "covergrid/engine/estimate.hpp"
+
+#include "covergrid/engine/metrics.hpp"
+#include "covergrid/engine/monte_carlo.hpp"
+#include "covergrid/engine/run.hpp"
+#include "covergrid/engine/shard.hpp"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <chrono>
+#include <thread>
+
+namespace covergrid::engine {
+
+namespace {
+
+// Calibration budget: chunks are timed cheapest first until this much time
+// has been spent or kMaxTimed chunks are done; a chunk the rate so far
+// predicts to take longer than kMaxChunkSeconds is not started.
+constexpr double kBudgetSeconds = 0.5;
+constexpr double kMaxChunkSeconds = 1.0;
+constexpr std::size_t kSampled = 9, kMaxTimed = 4;
+// After the first chunk, calibration stops once it has done this share of
+// the run's estimated cost, so that a small run is not slowed by it.
+constexpr double kMaxShare = 0.02;
+
+// The cube's assembly from the journal at the end (deflate, one core):
+// about 12 s per GB of uncompressed data, measured on the project's
+// two-core machine (the full-catalog scenario, 1.6 GB of data, 2026-12-02).
+constexpr double kAssemblySecondsPerByte = 12e-9;
+
+}  // namespace
+
+RunEstimate estimate_run(const Scenario& scenario, const Plan& plan, const std::vector<std::size_t>& todo,
+                         int threads) {
+  RunEstimate e;
+  const unsigned hw = std::max(1u, std::thread::hardware_concurrency());
+  e.threads = threads > 0 ? threads : static_cast<int>(hw);
+  double total_cost = 0;
+  for (std::size_t id : todo) {
+    e.cells += plan.chunks[id].n_count * plan.chunks[id].p_count;
+    total_cost += chunk_cost(scenario, plan.chunks[id]);
+  }
+  // Data size of the whole cube: /exact and /mc metrics per (cell, combo),
+  // the replicate counts per cell, and the summaries per (model, combo, n).
+  double all_cells = 0;
+  for (const auto& c : plan.chunks) all_cells += static_cast<double>(c.n_count * c.p_count);
+  const double combos = static_cast<double>(combo_count(scenario));
+  const double rows = static_cast<double>(scenario.models.size() * scenario.n.size()) * combos;
+  double per_cell = 0, per_row = 0;
+  if (scenario.exact) {
+    per_cell += combos * metric_count * 8.0;
+    per_row += stat_count * 8.0;
+  }
+  if (scenario.replicates > 0) {
+    per_cell += combos * mc_metric_count * 8.0 + 8.0;
+    per_row += grid_stat_count * 8.0;
+  }
+  e.cube_bytes = all_cells * per_cell + rows * per_row;
+  e.journal_bytes = static_cast<double>(e.cells) * per_cell + rows * per_row;
+  if (todo.empty()) return e;
+
+  // Sample chunks spread over the work, time the cheapest first.
+  std::vector<std::size_t> sample;
+  for (std::size_t k = 0; k < kSampled; ++k) {
+    const std::size_t at = todo[(todo.size() - 1) * k / std::max<std::size_t>(1, kSampled - 1)];
+    if (std::find(sample.begin(), sample.end(), at) == sample.end()) sample.push_back(at);
+  }
+  std::sort(sample.begin(), sample.end(), [&](std::size_t a, std::size_t b) {
+    return chunk_cost(scenario, plan.chunks[a]) < chunk_cost(scenario, plan.chunks[b]);
+  });
+  const auto start = std::chrono::steady_clock::now();
+  double timed_cost = 0, timed_seconds = 0;
+  for (std::size_t id : sample) {
+    const double cost = chunk_cost(scenario, plan.chunks[id]);
+    if (e.chunks_timed > 0 &&
+        (timed_seconds >= kBudgetSeconds || e.chunks_timed >= kMaxTimed ||
+         timed_cost >= kMaxShare * total_cost || cost * timed_seconds / timed_cost > kMaxChunkSeconds))
+      break;
+    const auto t0 = std::chrono::steady_clock::now();
+    const ChunkResult r = compute_chunk(scenario, plan.chunks[id]);
+    (void)r;
+    timed_seconds += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    timed_cost += cost;
+    ++e.chunks_timed;
+  }
+  e.calibration_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  // One thread's rate, spread over the threads (the run scales ~linearly
+  // with threads up to the cores: 2.16x on 2 in scripts/bench), never over
+  // more threads than the machine has.
+  const double parallel = std::min<double>(e.threads, hw);
+  e.seconds = (timed_cost > 0 ? total_cost * timed_seconds / timed_cost / parallel : 0) +
+              e.cube_bytes * kAssemblySecondsPerByte;
+  return e;
+}
+
+std::string duration_words(double s) {
+  if (s < 1) return "under a second";
+  if (s < 90) return fmt::format("about {:.0f} s", s);
+  if (s < 5400) return fmt::format("about {:.0f} min", s / 60);
+  if (s < 3 * 86400) return fmt::format("about {:.1f} h", s / 3600);
+  return fmt::format("about {:.0f} days", s / 86400);
+}
+
+std::string size_words(double b) {
+  if (b < 1e3) return fmt::format("{:.0f} bytes", b);
+  if (b < 1e6) return fmt::format("{:.0f} kB", b / 1e3);
+  if (b < 1e9) return fmt::format("{:.0f} MB", b / 1e6);
+  if (b < 1e12) return fmt::format("{:.1f} GB", b / 1e9);
+  return fmt::format("{:.1f} TB", b / 1e12);
+}
+
+}  // namespace covergrid::engine
