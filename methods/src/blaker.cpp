@@ -164,7 +164,8 @@ MethodEntry blaker_entry() {
            Family::exact_tail,
            {},
            "Blaker (2000), Canad. J. Statist. 28:783-798",
-           "inversion of Blaker's acceptability function; two-sided only"},
+           "inversion of Blaker's acceptability function; two-sided only",
+           true},
           [](const ParamValues&) { return std::make_unique<Blaker>(); }};
 }
 

@@ -35,7 +35,8 @@ MethodEntry clopper_pearson_entry() {
            Family::exact_tail,
            {},
            "Clopper & Pearson (1934), Biometrika 26:404-413",
-           "L=Beta^-1(a_lo; x, n-x+1), U=Beta^-1(1-a_hi; x+1, n-x); L=0 at x=0, U=1 at x=n"},
+           "L=Beta^-1(a_lo; x, n-x+1), U=Beta^-1(1-a_hi; x+1, n-x); L=0 at x=0, U=1 at x=n",
+           true},
           [](const ParamValues&) { return std::make_unique<ClopperPearson>(); }};
 }
 

@@ -233,3 +233,53 @@ TEST_CASE("help and tables read cleanly", "[cli][first-user]") {
   }
   CHECK(rows > 10);
 }
+
+TEST_CASE("intervals groups methods by their guarantee and draws each interval",
+          "[cli][first-user][intervals]") {
+  const auto r = call({"intervals", "2", "10"});
+  REQUIRE(r.status == 0);
+  const auto guaranteed = r.out.find("Guaranteed: coverage at least 95 %");
+  const auto approximate = r.out.find("Approximate: coverage near 95 %");
+  const auto bayesian = r.out.find("Bayesian: posterior intervals");
+  REQUIRE(guaranteed != std::string::npos);
+  REQUIRE(approximate != std::string::npos);
+  REQUIRE(bayesian != std::string::npos);
+  CHECK(guaranteed < approximate);
+  CHECK(approximate < bayesian);
+  auto row = [&](const std::string& label) {
+    const auto at = r.out.find("\n  " + label + " ");
+    REQUIRE(at != std::string::npos);
+    return std::make_pair(at, r.out.substr(at + 1, r.out.find('\n', at + 1) - at - 1));
+  };
+  // Each method in its group: the guaranteed ones between the first two headings.
+  for (const char* m : {"clopper-pearson", "blaker"}) {
+    const auto [at, text] = row(m);
+    CHECK(at > guaranteed);
+    CHECK(at < approximate);
+  }
+  for (const char* m : {"wald", "wilson", "mid-p", "likelihood-ratio", "logit"}) {
+    const auto [at, text] = row(m);
+    CHECK(at > approximate);
+    CHECK(at < bayesian);
+  }
+  for (const char* m : {"jeffreys", "bayes-hpd"}) CHECK(row(m).first > bayesian);
+  // The drawing: 40 columns for [0, 1]; Clopper-Pearson at 2/10 is
+  // [0.025211, 0.556095] (Beta quantiles, the reference table's row), so '['
+  // at column round(0.025211 * 39) = 1, ']' at round(0.556095 * 39) = 22 and
+  // 'o' at round(0.2 * 39) = 8.
+  const std::string cp = row("clopper-pearson").second;
+  CHECK(cp.find("0.025211  0.556095  0.530885") != std::string::npos);
+  const auto frame = cp.find("0 ");
+  const std::string d = cp.substr(cp.find(" 0 ") + 3, 40);
+  (void)frame;
+  CHECK(d == ".[======o=============].................");
+  // Wald at 2/10 overshoots below 0, and at 0/10 has zero width.
+  CHECK(row("wald").second.find("lower clipped from -0.0479") != std::string::npos);
+  const auto zero = call({"intervals", "0", "10", "--method", "wald"});
+  CHECK(zero.out.find("zero width") != std::string::npos);
+  CHECK(zero.out.find("0 |....") != std::string::npos);
+  // The CSV keeps its columns.
+  const auto csv = call({"intervals", "2", "10", "--csv", "--method", "wald"});
+  CHECK(csv.out.rfind("method,x,n,level,side,lower,upper,raw_lower,raw_upper\n\"wald\",2,10,0.95,two-sided,",
+                      0) == 0);
+}

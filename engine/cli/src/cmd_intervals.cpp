@@ -1,9 +1,12 @@
 // covergrid intervals: every method's limits for observed data.
 #include "commands.hpp"
+#include "covergrid/output/tables.hpp"
 #include "covergrid/scenarios/loader.hpp"
 
 #include <fmt/format.h>
 
+#include <algorithm>
+#include <cmath>
 #include <memory>
 
 namespace covergrid::cli {
@@ -11,6 +14,64 @@ namespace covergrid::cli {
 namespace {
 
 std::string fmt_limit(double v) { return fmt::format("{:.6f}", v); }
+
+/// Columns of the text drawing of [0, 1].
+constexpr int drawing_columns = 40;
+
+/// A text drawing of the interval on [0, 1]: '.' outside it, '=' inside,
+/// '[' and ']' at its ends, 'o' at the observed share, '|' for an interval of
+/// zero width; framed by the ends of [0, 1].
+std::string drawing(double lower, double upper, double share) {
+  auto col = [](double v) {
+    return std::clamp(static_cast<int>(std::lround(v * (drawing_columns - 1))), 0, drawing_columns - 1);
+  };
+  std::string d(drawing_columns, '.');
+  const int a = col(lower), b = col(upper);
+  for (int c = a; c <= b; ++c) d[static_cast<std::size_t>(c)] = '=';
+  if (upper - lower <= 0) {
+    d[static_cast<std::size_t>(a)] = '|';
+  } else {
+    d[static_cast<std::size_t>(a)] = '[';
+    d[static_cast<std::size_t>(b)] = ']';
+  }
+  const int o = col(share);
+  if (o > a && o < b) d[static_cast<std::size_t>(o)] = 'o';
+  return "0 " + d + " 1";
+}
+
+/// The notes on one interval: zero width, limits clipped to [0, 1].
+std::string notes(const methods::Limits& lim) {
+  std::vector<std::string> parts;
+  if (lim.upper - lim.lower <= 0) parts.push_back("zero width: covers only the point itself");
+  if (lim.raw_lower < 0) parts.push_back(fmt::format("lower clipped from {:.4f}", lim.raw_lower));
+  if (lim.raw_upper > 1) parts.push_back(fmt::format("upper clipped from {:.4f}", lim.raw_upper));
+  std::string s;
+  for (const auto& p : parts) s += (s.empty() ? "" : "; ") + p;
+  return s;
+}
+
+/// The guarantee groups, in the order shown.
+enum class Group { guaranteed, approximate, bayesian };
+
+Group group_of(const methods::MethodInfo& info) {
+  if (info.guaranteed) return Group::guaranteed;
+  if (info.family == methods::Family::bayesian) return Group::bayesian;
+  return Group::approximate;
+}
+
+std::string group_heading(Group g, double level) {
+  switch (g) {
+    case Group::guaranteed:
+      return fmt::format("Guaranteed: coverage at least {:g} % at every p (inversion of exact tail tests)",
+                         100 * level);
+    case Group::approximate:
+      return fmt::format("Approximate: coverage near {:g} % on average over p, below it at some p",
+                         100 * level);
+    case Group::bayesian:
+      return "Bayesian: posterior intervals, read as confidence intervals; no coverage guarantee";
+  }
+  return "";
+}
 
 int cmd_intervals(int x, int n, double level, const std::string& side_text,
                   const std::vector<std::string>& method_texts, bool csv, std::ostream& out) {
@@ -29,37 +90,52 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
     for (const auto& e : methods::registry()) list.push_back(methods::make_instance(e.info.id, {}));
   else
     for (const auto& t : method_texts) list.push_back(parse_method_option(t));
-  std::size_t width = 6;
-  for (const auto& m : list) width = std::max(width, m.label.size());
-  if (csv)
+  if (csv) {
     out << "method,x,n,level,side,lower,upper,raw_lower,raw_upper\n";
-  else
-    out << fmt::format("x = {}, n = {}, p^ = {:.6f}, {} at {}%\n\n  {:<{}}  {:>10}  {:>10}  {:>10}  note\n",
-                       x, n, static_cast<double>(x) / n, side_text, fmt::format("{:g}", 100 * level),
-                       "method", width, "lower", "upper", "width");
-  for (const auto& m : list) {
-    if (!m.method->supports(side)) {
-      if (!csv)
-        out << fmt::format("  {:<{}}  {:>10}  {:>10}  {:>10}  {} only\n", m.label, width, "-", "-", "-",
-                           "two-sided");
-      continue;
-    }
-    const auto lim = methods::interval(*m.method, x, n, level, side);
-    if (csv) {
+    for (const auto& m : list) {
+      if (!m.method->supports(side)) continue;
+      const auto lim = methods::interval(*m.method, x, n, level, side);
       out << fmt::format("\"{}\",{},{},{},{},{:.17g},{:.17g},{:.17g},{:.17g}\n", m.label, x, n, level,
                          side_text, lim.lower, lim.upper, lim.raw_lower, lim.raw_upper);
-    } else {
-      std::string note;
-      if (lim.raw_lower < 0 || lim.raw_upper > 1)
-        note = fmt::format("clipped from [{:.4f}, {:.4f}]", lim.raw_lower, lim.raw_upper);
-      if (lim.upper == lim.lower) note += note.empty() ? "zero width" : "; zero width";
-      out << fmt::format("  {:<{}}  {:>10}  {:>10}  {:>10}  {}\n", m.label, width, fmt_limit(lim.lower),
-                         fmt_limit(lim.upper), fmt_limit(lim.upper - lim.lower), note);
     }
+    return exit_ok;
   }
-  if (!csv)
-    out << "\nA confidence interval comes from a procedure whose coverage is a long-run property;\n"
-           "see `covergrid run` for how each method's coverage behaves at this n.\n";
+  const double share = static_cast<double>(x) / n;
+  std::size_t width = 6;
+  for (const auto& m : list) width = std::max(width, m.label.size());
+  out << fmt::format("{} success{} in {} trial{}, observed share {:.4f}: {} intervals at {:g} %\n", x,
+                     x == 1 ? "" : "es", n, n == 1 ? "" : "s", share, side_text, 100 * level);
+  for (Group g : {Group::guaranteed, Group::approximate, Group::bayesian}) {
+    std::string block;
+    for (const auto& m : list) {
+      if (!m.entry || group_of(m.entry->info) != g) continue;
+      if (!m.method->supports(side)) {
+        block += fmt::format("  {:<{}}  defines only the two-sided interval\n", m.label, width);
+        continue;
+      }
+      const auto lim = methods::interval(*m.method, x, n, level, side);
+      const std::string note = notes(lim);
+      block += fmt::format("  {:<{}}  {}  {}  {}  {}{}\n", m.label, width, fmt_limit(lim.lower),
+                           fmt_limit(lim.upper), fmt_limit(lim.upper - lim.lower),
+                           drawing(lim.lower, lim.upper, share), note.empty() ? "" : "  " + note);
+    }
+    if (!block.empty())
+      out << '\n'
+          << group_heading(g, level) << '\n'
+          << fmt::format("  {:<{}}  {:>8}  {:>8}  {:>8}  {}\n", "method", width, "lower", "upper", "width",
+                         "  the interval on [0, 1]")
+          << block;
+  }
+  out << fmt::format(
+      "\nDrawing: [0, 1] in {} columns, '=' the interval, 'o' the observed share, '|' an interval of zero "
+      "width.\n",
+      drawing_columns);
+  out << "\n"
+      << output::wrap_text(
+             "The groups say what each procedure promises; `covergrid audit` and `covergrid run` show how "
+             "its coverage behaves at this n. " +
+                 std::string(output::coverage_caution),
+             100);
   return exit_ok;
 }
 
@@ -84,6 +160,9 @@ Command add_intervals_command(CLI::App& app) {
   intervals->add_option("--method", a->methods,
                         "method id, optionally id:key=value,... (repeatable; default all)");
   intervals->add_flag("--csv", a->csv, "CSV output with raw (unclipped) limits");
+  intervals->footer(
+      "Methods are grouped by what they promise: guaranteed coverage (exact tail inversion), "
+      "approximate, Bayesian. Each row draws the interval on [0, 1] against the observed share.");
   return {intervals, [a](std::ostream& out, std::ostream&) {
             return cmd_intervals(a->x, a->n, a->level, a->side, a->methods, a->csv, out);
           }};

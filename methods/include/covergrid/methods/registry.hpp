@@ -20,6 +20,10 @@ struct MethodInfo {
   std::vector<ParamSpec> params;
   std::string reference;   // published reference
   std::string definition;  // one-line definition, including one-sided forms
+  /// Coverage at least nominal at every n and p, by construction (inversion
+  /// of exact tail tests: Clopper-Pearson, Blaker); tests/engine holds every
+  /// method so marked to it. Tables group methods by it.
+  bool guaranteed = false;
 };
 
 /// A catalog entry: metadata plus a factory taking fully resolved parameters.
