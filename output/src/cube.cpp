@@ -655,11 +655,12 @@ CubeReader::CubeReader(const std::string& path) : path_(path) {
     const std::int64_t version = get_attr_int(root, "format_version");
     if (version != cube_format_version)
       throw InputError(
-          path, fmt::format("has cube format version {} (written by covergrid {}); this covergrid reads only "
-                            "version {}: run its scenario again with this covergrid, or read it with the one "
-                            "that wrote it",
-                            version, has_attr(root, "tool_version") ? get_attr_string(root, "tool_version") : "?",
-                            cube_format_version));
+          path,
+          fmt::format("has cube format version {} (written by covergrid {}); this covergrid reads only "
+                      "version {}: run its scenario again with this covergrid, or read it with the one "
+                      "that wrote it",
+                      version, has_attr(root, "tool_version") ? get_attr_string(root, "tool_version") : "?",
+                      cube_format_version));
     complete_ = get_attr_int(root, "complete") != 0;
     if (has_attr(root, "shard")) shard_ = get_attr_string(root, "shard");
     // Every metric group holds the same axes; /summary is always there.
@@ -701,9 +702,10 @@ bool CubeReader::has_mc() const { return exists(file_.id(), "mc/coverage"); }
 
 void refuse_damaged(const std::string& path, const std::string& dataset, const CubeError& e) {
   if (is_checksum_failure(e))
-    throw InputError(path, fmt::format("is damaged: dataset {} has a storage chunk that fails its Fletcher-32 "
-                                       "checksum; the file was changed after it was written",
-                                       dataset));
+    throw InputError(path,
+                     fmt::format("is damaged: dataset {} has a storage chunk that fails its Fletcher-32 "
+                                 "checksum; the file was changed after it was written",
+                                 dataset));
   throw InputError(path, fmt::format("is damaged: dataset {} cannot be read ({})", dataset, e.what()));
 }
 

@@ -184,10 +184,10 @@ Handle write_plain(hid_t parent, const std::string& name, const std::vector<T>& 
     check(H5Pset_chunk(dcpl.get(), 1, dims), "set chunking for " + name);
     check(H5Pset_fletcher32(dcpl.get()), "set the Fletcher-32 checksum for " + name);
   }
-  Handle d(check_id(H5Dcreate2(parent, name.c_str(), file_type, space.get(), H5P_DEFAULT, dcpl.get(),
-                               H5P_DEFAULT),
-                    "create dataset " + name),
-           H5Dclose);
+  Handle d(
+      check_id(H5Dcreate2(parent, name.c_str(), file_type, space.get(), H5P_DEFAULT, dcpl.get(), H5P_DEFAULT),
+               "create dataset " + name),
+      H5Dclose);
   if (!v.empty())
     check(H5Dwrite(d.get(), mem_type, H5S_ALL, H5S_ALL, H5P_DEFAULT, v.data()), "write " + name);
   return d;
@@ -327,9 +327,9 @@ void read_every_chunk(hid_t dataset, const std::string& name) {
     for (std::size_t i = 0; i < rank; ++i) count[i] = std::min(chunk[i], dims[i] - start[i]);
     check(H5Sselect_hyperslab(file_space.get(), H5S_SELECT_SET, start.data(), nullptr, count.data(), nullptr),
           "select a chunk of " + name);
-    Handle mem_space(check_id(H5Screate_simple(static_cast<int>(rank), count.data(), nullptr),
-                              "make a memory dataspace"),
-                     H5Sclose);
+    Handle mem_space(
+        check_id(H5Screate_simple(static_cast<int>(rank), count.data(), nullptr), "make a memory dataspace"),
+        H5Sclose);
     check(H5Dread(dataset, mtype.get(), mem_space.get(), file_space.get(), H5P_DEFAULT, buf.data()),
           "read " + name);
     if (vlen_string) H5Dvlen_reclaim(mtype.get(), mem_space.get(), H5P_DEFAULT, buf.data());

@@ -221,7 +221,8 @@ TEST_CASE("merge refuses foreign, mismatched, overlapping, missing and incomplet
   const std::string damaged = copy(s2, "damaged.h5");
   damage_chunk(damaged, "/mc/coverage");
   refused({"merge", s1, damaged, "-o", o_},
-          {damaged + ": is damaged: dataset /mc/coverage has a storage chunk that fails its Fletcher-32 checksum"},
+          {damaged +
+           ": is damaged: dataset /mc/coverage has a storage chunk that fails its Fletcher-32 checksum"},
           out);
   refused({"merge", three[2], three[0], "-o", o_}, {"1 of 3 shards is missing: 2/3"}, out);
   refused({"merge", s1, three[1], "-o", o_}, {s1, three[1], "different numbers N"}, out);

@@ -33,7 +33,9 @@ int cmd_inspect(const std::string& path, std::ostream& out) {
   out << "  methods:";
   for (const auto& m : cube.methods) out << ' ' << m;
   out << '\n';
-  out << fmt::format("  checksums: every chunk of all {} datasets verified (Fletcher-32; string axes by their copies)\n", datasets);
+  out << fmt::format(
+      "  checksums: every chunk of all {} datasets verified (Fletcher-32; string axes by their copies)\n",
+      datasets);
   out << fmt::format("  sources: {}\n", cube.has_exact() && cube.has_mc() ? "exact and Monte Carlo"
                                         : cube.has_exact()                ? "exact"
                                                                           : "Monte Carlo");
