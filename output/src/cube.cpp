@@ -10,12 +10,14 @@
 #include <unistd.h>
 
 #include <cerrno>
+#include <cmath>
 #include <chrono>
 #include <cstdio>
 #include <cstring>
 #include <ctime>
 #include <filesystem>
 #include <optional>
+#include <string_view>
 
 namespace covergrid::output {
 
@@ -406,6 +408,70 @@ void CubeWriter::finish() {
   fs::remove(journal_path_, ec);
 }
 
+namespace {
+
+/// CF-style `long_name` and `units` of the cube's datasets: probabilities,
+/// shares, widths and p-locations are dimensionless ("1"), counts "count".
+/// The label axes (model, side, method) are strings and carry no units.
+struct Description {
+  std::string_view name, long_name, units;
+};
+constexpr Description descriptions[] = {
+    {"model", "sampling model", ""},
+    {"side", "interval side", ""},
+    {"method", "interval method (label)", ""},
+    {"level", "nominal confidence level", "1"},
+    {"n", "sample size (number of trials)", "count"},
+    {"p", "true proportion", "1"},
+    {"coverage", "coverage probability P(L <= p <= U)", "1"},
+    {"miss_low", "probability that the interval lies below p, P(U < p)", "1"},
+    {"miss_high", "probability that the interval lies above p, P(L > p)", "1"},
+    {"width", "expected interval width E[U - L]", "1"},
+    {"width_sd", "standard deviation of the interval width", "1"},
+    {"degenerate", "probability of a degenerate interval, P(U = L)", "1"},
+    {"overshoot", "probability that a raw limit falls outside [0, 1]", "1"},
+    {"coverage_se", "standard error of the simulated coverage", "1"},
+    {"replicates", "Monte Carlo replicates of the cell", "count"},
+    {"mean_coverage", "mean coverage over the grid p", "1"},
+    {"min_coverage", "smallest coverage over the grid p", "1"},
+    {"min_coverage_p", "grid p of the smallest coverage", "1"},
+    {"rms_deviation", "root-mean-square deviation of coverage from nominal over the grid p", "1"},
+    {"share_below", "share of the grid p with coverage below nominal", "1"},
+    {"mean_width", "mean expected width over the grid p", "1"},
+    {"mean_miss_low", "mean P(U < p) over the grid p", "1"},
+    {"mean_miss_high", "mean P(L > p) over the grid p", "1"},
+    {"inf_coverage", "infimum of coverage over the continuous p-range", "1"},
+    {"inf_coverage_p", "p where the coverage infimum is attained or approached", "1"},
+    {"inf_coverage_from", "how the infimum is reached: -1 from below p, +1 from above, 0 attained", "1"},
+    {"inf_refined", "1 where a non-contiguous covered set forced a dense search", "1"},
+    {"mean_coverage_continuous", "mean coverage under p uniform on the continuous p-range", "1"},
+};
+
+/// Sets long_name (with `prefix`, e.g. "exact ") and units of a dataset.
+void describe(hid_t dataset, std::string_view name, const std::string& prefix = "") {
+  for (const auto& d : descriptions)
+    if (d.name == name) {
+      set_attr(dataset, "long_name", prefix + std::string(d.long_name));
+      if (!d.units.empty()) set_attr(dataset, "units", std::string(d.units));
+      return;
+    }
+  throw CubeError("internal: no description of dataset " + std::string(name));
+}
+
+/// A chunk's replicate counts as the integers they are (the engine carries
+/// them as doubles, exact below 2^53).
+std::vector<std::int64_t> replicate_counts(const std::vector<double>& v) {
+  std::vector<std::int64_t> out(v.size());
+  for (std::size_t i = 0; i < v.size(); ++i) {
+    if (!(v[i] >= 0 && v[i] <= 9007199254740992.0 && v[i] == std::floor(v[i])))
+      throw CubeError(fmt::format("internal: replicate count {} is not a whole number", v[i]));
+    out[i] = static_cast<std::int64_t>(v[i]);
+  }
+  return out;
+}
+
+}  // namespace
+
 void assemble_cube(const std::string& path, const CubeContents& in) {
   const engine::Scenario& s = in.scenario;
   const engine::Plan& plan_ = in.plan;
@@ -422,20 +488,28 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
   set_attr(root, "shard", in.shard ? in.shard->spec.label() : std::string("all"));
   set_attr(root, "complete", std::int64_t{0});
 
-  Handle axes = create_group(root, "axes");
   std::vector<std::string> models, sides, labels;
   for (const auto& m : s.models) models.push_back(m.label);
   for (auto side : s.sides) sides.emplace_back(methods::side_name(side));
   for (const auto& m : s.methods) labels.push_back(m.label);
-  std::vector<std::int64_t> ns(s.n.begin(), s.n.end());
-  std::vector<Handle> scales;
-  scales.push_back(write_vector(axes.get(), "model", models));
-  scales.push_back(write_vector(axes.get(), "side", sides));
-  scales.push_back(write_vector(axes.get(), "level", s.levels));
-  scales.push_back(write_vector(axes.get(), "method", labels));
-  scales.push_back(write_vector(axes.get(), "n", ns));
-  scales.push_back(write_vector(axes.get(), "p", s.p));
-  for (std::size_t i = 0; i < scales.size(); ++i) make_scale(scales[i].get(), axis_names[i]);
+  const std::vector<std::int64_t> ns(s.n.begin(), s.n.end());
+  // Every metric group holds its own copy of the six axes as dimension
+  // scales: netCDF-4 readers (xarray) take a group's coordinates from the
+  // group itself, so a group is a self-contained labelled dataset.
+  auto write_axes = [&](hid_t group) {
+    std::vector<Handle> scales;
+    scales.push_back(write_vector(group, "model", models));
+    scales.push_back(write_vector(group, "side", sides));
+    scales.push_back(write_vector(group, "level", s.levels));
+    scales.push_back(write_vector(group, "method", labels));
+    scales.push_back(write_vector(group, "n", ns));
+    scales.push_back(write_vector(group, "p", s.p));
+    for (std::size_t i = 0; i < scales.size(); ++i) {
+      make_scale(scales[i].get(), axis_names[i]);
+      describe(scales[i].get(), axis_names[i]);
+    }
+    return scales;
+  };
 
   Handle mg = create_group(root, "methods");
   for (const auto& m : s.methods) {
@@ -452,22 +526,27 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
   const std::vector<hsize_t> dims = {s.models.size(), S, L, M, s.n.size(), s.p.size()};
   const std::vector<hsize_t> chunk = {1, 1, 1, 1, plan_.n_block, plan_.p_block};
   const std::vector<std::string> axis_list(axis_names.begin(), axis_names.end());
-  auto make_metric = [&](hid_t group, const std::string& name) {
+  auto make_metric = [&](hid_t group, const std::vector<Handle>& scales, const std::string& name,
+                         const std::string& prefix) {
     Handle d = create_double_dataset(group, name, dims, chunk);
     set_attr(d.get(), "axes", axis_list);
+    describe(d.get(), name, prefix);
     for (unsigned i = 0; i < 6; ++i) attach_scale(d.get(), scales[i].get(), i, axis_names[i]);
     return d;
   };
-  std::vector<Handle> exact, mc;
+  std::vector<Handle> exact, mc, exact_scales, mc_scales;
   Handle mc_reps;
   if (s.exact) {
     Handle eg = create_group(root, "exact");
     set_attr(eg.get(), "pmf_tail_bound", 5e-16);
     set_attr(eg.get(), "interval", std::string("closed [L, U]; limits clipped to [0, 1]"));
-    for (auto name : engine::metric_names) exact.push_back(make_metric(eg.get(), std::string(name)));
+    exact_scales = write_axes(eg.get());
+    for (auto name : engine::metric_names)
+      exact.push_back(make_metric(eg.get(), exact_scales, std::string(name), "exact "));
   }
   if (s.replicates > 0) {
     Handle g = create_group(root, "mc");
+    mc_scales = write_axes(g.get());
     set_attr(g.get(), "generator",
              std::string("Random123 Philox4x32-10; key = seed; counter = (replicate/2, 0, "
                          "p index, model << 24 | n)"));
@@ -475,33 +554,39 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
     set_attr(g.get(), "replicates", static_cast<std::int64_t>(s.replicates));
     set_attr(g.get(), "target_se", s.target_se);
     set_attr(g.get(), "max_replicates", static_cast<std::int64_t>(s.max_replicates));
-    for (auto name : engine::mc_metric_names) mc.push_back(make_metric(g.get(), std::string(name)));
+    for (auto name : engine::mc_metric_names)
+      mc.push_back(make_metric(g.get(), mc_scales, std::string(name), "simulated "));
     const std::vector<hsize_t> rdims = {s.models.size(), s.n.size(), s.p.size()};
     const std::vector<hsize_t> rchunk = {1, plan_.n_block, plan_.p_block};
-    mc_reps = create_double_dataset(g.get(), "replicates", rdims, rchunk);
+    mc_reps = create_int64_dataset(g.get(), "replicates", rdims, rchunk);
     set_attr(mc_reps.get(), "axes", std::vector<std::string>{"model", "n", "p"});
-    attach_scale(mc_reps.get(), scales[0].get(), 0, "model");
-    attach_scale(mc_reps.get(), scales[4].get(), 1, "n");
-    attach_scale(mc_reps.get(), scales[5].get(), 2, "p");
+    describe(mc_reps.get(), "replicates");
+    attach_scale(mc_reps.get(), mc_scales[0].get(), 0, "model");
+    attach_scale(mc_reps.get(), mc_scales[4].get(), 1, "n");
+    attach_scale(mc_reps.get(), mc_scales[5].get(), 2, "p");
   }
   Handle sg = create_group(root, "summary");
+  const std::vector<Handle> summary_scales = write_axes(sg.get());
   set_attr(sg.get(), "p_range",
            std::vector<std::string>{fmt::format("{}", s.p.front()), fmt::format("{}", s.p.back())});
   const std::vector<hsize_t> sdims(dims.begin(), dims.end() - 1);
   const std::vector<hsize_t> schunk = {1, 1, 1, 1, plan_.n_block};
   const std::vector<std::string> saxes(axis_list.begin(), axis_list.end() - 1);
-  auto make_stat = [&](const std::string& name) {
+  auto make_stat = [&](const std::string& name, const std::string& stat, const std::string& prefix) {
     Handle d = create_double_dataset(sg.get(), name, sdims, schunk);
     set_attr(d.get(), "axes", saxes);
-    for (unsigned i = 0; i < 5; ++i) attach_scale(d.get(), scales[i].get(), i, axis_names[i]);
+    describe(d.get(), stat, prefix);
+    for (unsigned i = 0; i < 5; ++i) attach_scale(d.get(), summary_scales[i].get(), i, axis_names[i]);
     return d;
   };
   std::vector<Handle> stats, mc_stats;
   if (s.exact)
-    for (auto name : engine::stat_names) stats.push_back(make_stat(std::string(name)));
+    for (auto name : engine::stat_names) stats.push_back(make_stat(std::string(name), std::string(name), ""));
   if (s.replicates > 0)
-    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
-      mc_stats.push_back(make_stat("mc_" + std::string(engine::stat_names[k])));
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k) {
+      const std::string stat(engine::stat_names[k]);
+      mc_stats.push_back(make_stat("mc_" + stat, stat, "simulated "));
+    }
 
   // The chunks, one at a time in plan order.
   std::vector<std::uint8_t> done(plan_.chunks.size(), in.shard ? 0 : 1);
@@ -526,8 +611,8 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
     if (r.has_mc) {
       for (std::size_t k = 0; k < engine::mc_metric_count; ++k)
         write_block(mc[k].get(), start, count, r.mc[k].data());
-      write_block(mc_reps.get(), {c.model, c.n_begin, c.p_begin}, {1, c.n_count, c.p_count},
-                  r.mc_replicates.data());
+      write_block_i64(mc_reps.get(), {c.model, c.n_begin, c.p_begin}, {1, c.n_count, c.p_count},
+                      replicate_counts(r.mc_replicates).data());
     }
     if (r.has_mc_grid_stats)
       for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
@@ -569,16 +654,22 @@ CubeReader::CubeReader(const std::string& path) : path_(path) {
       throw InputError(path, "is an HDF5 file but not a covergrid cube (no format = \"covergrid-cube\")");
     const std::int64_t version = get_attr_int(root, "format_version");
     if (version != cube_format_version)
-      throw InputError(path, fmt::format("has cube format version {}; this covergrid reads version {}",
-                                         version, cube_format_version));
+      throw InputError(
+          path,
+          fmt::format("has cube format version {} (written by covergrid {}); this covergrid reads only "
+                      "version {}: run its scenario again with this covergrid, or read it with the one "
+                      "that wrote it",
+                      version, has_attr(root, "tool_version") ? get_attr_string(root, "tool_version") : "?",
+                      cube_format_version));
     complete_ = get_attr_int(root, "complete") != 0;
     if (has_attr(root, "shard")) shard_ = get_attr_string(root, "shard");
-    models = read_strings(root, "/axes/model");
-    sides = read_strings(root, "/axes/side");
-    levels = read_doubles(root, "/axes/level");
-    methods = read_strings(root, "/axes/method");
-    n = read_int64s(root, "/axes/n");
-    p = read_doubles(root, "/axes/p");
+    // Every metric group holds the same axes; /summary is always there.
+    models = read_strings(root, "/summary/model");
+    sides = read_strings(root, "/summary/side");
+    levels = read_doubles(root, "/summary/level");
+    methods = read_strings(root, "/summary/method");
+    n = read_int64s(root, "/summary/n");
+    p = read_doubles(root, "/summary/p");
     for (const auto& label : methods) {
       Handle g = open_group(root, "/methods/" + label);
       auto& info = method_info[label];
@@ -609,28 +700,75 @@ std::string CubeReader::attr(const std::string& name) const {
 bool CubeReader::has_exact() const { return exists(file_.id(), "exact/coverage"); }
 bool CubeReader::has_mc() const { return exists(file_.id(), "mc/coverage"); }
 
-std::vector<double> CubeReader::mc_replicates(std::size_t model, std::size_t n_index) const {
-  Handle d = open_dataset(file_.id(), "/mc/replicates");
-  std::vector<double> out(p.size());
-  read_block(d.get(), {model, n_index, 0}, {1, 1, p.size()}, out.data());
+void refuse_damaged(const std::string& path, const std::string& dataset, const CubeError& e) {
+  if (is_checksum_failure(e))
+    throw InputError(path,
+                     fmt::format("is damaged: dataset {} has a storage chunk that fails its Fletcher-32 "
+                                 "checksum; the file was changed after it was written",
+                                 dataset));
+  throw InputError(path, fmt::format("is damaged: dataset {} cannot be read ({})", dataset, e.what()));
+}
+
+std::vector<double> CubeReader::block(const std::string& dataset, const std::vector<hsize_t>& start,
+                                      const std::vector<hsize_t>& count) const {
+  std::size_t size = 1;
+  for (auto v : count) size *= v;
+  std::vector<double> out(size);
+  try {
+    Handle d = open_dataset(file_.id(), dataset);
+    read_block(d.get(), start, count, out.data());
+  } catch (const CubeError& e) {
+    refuse_damaged(path_, dataset, e);
+  }
   return out;
+}
+
+std::size_t CubeReader::verify() const {
+  std::vector<std::string> names;
+  try {
+    names = dataset_paths(file_.id());
+  } catch (const CubeError& e) {
+    throw InputError(path_, std::string("is damaged: ") + e.what());
+  }
+  for (const auto& name : names) try {
+      Handle d = open_dataset(file_.id(), name);
+      read_every_chunk(d.get(), name);
+    } catch (const CubeError& e) {
+      refuse_damaged(path_, name, e);
+    }
+  // The string axes carry no checksum (HDF5 filters no variable-length
+  // data): every metric group's copy must equal the one read from /summary.
+  for (const std::string group : {"/exact/", "/mc/"}) {
+    if (!exists(file_.id(), group.substr(1, group.size() - 2))) continue;
+    const std::pair<const char*, const std::vector<std::string>*> axes[] = {
+        {"model", &models}, {"side", &sides}, {"method", &methods}};
+    for (const auto& [axis, values] : axes) try {
+        if (read_strings(file_.id(), group + axis) != *values)
+          throw InputError(path_, fmt::format("is damaged: dataset {}{} differs from /summary/{} (the copies "
+                                              "of an axis must agree)",
+                                              group, axis, axis));
+      } catch (const CubeError& e) {
+        refuse_damaged(path_, group + axis, e);
+      }
+  }
+  return names.size();
+}
+
+std::vector<double> CubeReader::mc_replicates(std::size_t model, std::size_t n_index) const {
+  // Stored as int64; HDF5 converts to double on reading (exact below 2^53).
+  return block("/mc/replicates", {model, n_index, 0}, {1, 1, p.size()});
 }
 
 std::vector<double> CubeReader::row(const std::string& dataset, std::size_t model, std::size_t side,
                                     std::size_t level, std::size_t method, std::size_t n_index) const {
-  Handle d = open_dataset(file_.id(), dataset);
-  std::vector<double> out(p.size());
-  read_block(d.get(), {model, side, level, method, n_index, 0}, {1, 1, 1, 1, 1, p.size()}, out.data());
-  return out;
+  return block(dataset, {model, side, level, method, n_index, 0}, {1, 1, 1, 1, 1, p.size()});
 }
 
 std::vector<double> CubeReader::rows(const std::string& group, const std::string& metric, std::size_t model,
                                      std::size_t side, std::size_t level, std::size_t method,
                                      std::size_t n_begin, std::size_t n_count) const {
-  Handle d = open_dataset(file_.id(), "/" + group + "/" + metric);
-  std::vector<double> out(n_count * p.size());
-  read_block(d.get(), {model, side, level, method, n_begin, 0}, {1, 1, 1, 1, n_count, p.size()}, out.data());
-  return out;
+  return block("/" + group + "/" + metric, {model, side, level, method, n_begin, 0},
+               {1, 1, 1, 1, n_count, p.size()});
 }
 
 std::vector<double> CubeReader::mc_row(const std::string& metric, std::size_t model, std::size_t side,
@@ -639,13 +777,15 @@ std::vector<double> CubeReader::mc_row(const std::string& metric, std::size_t mo
 }
 
 std::vector<double> CubeReader::summary(const std::string& stat) const {
-  Handle d = open_dataset(file_.id(), "/summary/" + stat);
-  const auto dims = shape(d.get());
-  std::size_t total = 1;
-  for (auto v : dims) total *= v;
-  std::vector<double> out(total);
-  read_block(d.get(), std::vector<hsize_t>(dims.size(), 0), dims, out.data());
-  return out;
+  const std::string name = "/summary/" + stat;
+  std::vector<hsize_t> dims;
+  try {
+    Handle d = open_dataset(file_.id(), name);
+    dims = shape(d.get());
+  } catch (const CubeError& e) {
+    refuse_damaged(path_, name, e);
+  }
+  return block(name, std::vector<hsize_t>(dims.size(), 0), dims);
 }
 
 std::vector<double> CubeReader::exact_row(const std::string& metric, std::size_t model, std::size_t side,

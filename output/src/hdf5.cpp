@@ -2,20 +2,51 @@
 
 #include <hdf5_hl.h>
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
+#include <string_view>
+#include <utility>
 
 namespace covergrid::output {
 
 void quiet_hdf5_errors() { H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr); }
 
+namespace {
+
+constexpr const char* checksum_reason = "Fletcher32 checksum";
+
+/// The innermost description on HDF5's error stack (where the failure was
+/// detected), or "" when there is none. H5Ewalk2 leaves the stack as it is.
+std::string innermost_reason() {
+  std::string reason;
+  auto visit = [](unsigned, const H5E_error2_t* e, void* data) -> herr_t {
+    auto* out = static_cast<std::string*>(data);
+    if (out->empty() && e->desc && *e->desc) *out = e->desc;
+    return 0;
+  };
+  H5Ewalk2(H5E_DEFAULT, H5E_WALK_UPWARD, visit, &reason);
+  return reason;
+}
+
+[[noreturn]] void fail(const std::string& what) {
+  const std::string reason = innermost_reason();
+  throw CubeError("HDF5: cannot " + what + (reason.empty() ? "" : " (" + reason + ")"));
+}
+
+}  // namespace
+
 hid_t check_id(hid_t id, const std::string& what) {
-  if (id < 0) throw CubeError("HDF5: cannot " + what);
+  if (id < 0) fail(what);
   return id;
 }
 
 void check(herr_t status, const std::string& what) {
-  if (status < 0) throw CubeError("HDF5: cannot " + what);
+  if (status < 0) fail(what);
+}
+
+bool is_checksum_failure(const CubeError& e) {
+  return std::string_view(e.what()).find(checksum_reason) != std::string_view::npos;
 }
 
 namespace {
@@ -102,35 +133,61 @@ Handle open_dataset(hid_t parent, const std::string& name) {
   return Handle(check_id(H5Dopen2(parent, name.c_str(), dapl.get()), "open dataset " + name), H5Dclose);
 }
 
-Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
-                             const std::vector<hsize_t>& chunk) {
+namespace {
+
+/// A chunked, shuffled, deflated and checksummed dataset of `file_type`.
+Handle create_chunked(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
+                      const std::vector<hsize_t>& chunk, hid_t file_type, hid_t fill_type, const void* fill) {
   const int rank = static_cast<int>(dims.size());
   Handle space(check_id(H5Screate_simple(rank, dims.data(), nullptr), "make a dataspace"), H5Sclose);
   Handle dcpl(check_id(H5Pcreate(H5P_DATASET_CREATE), "make a dataset-creation list"), H5Pclose);
   check(H5Pset_chunk(dcpl.get(), rank, chunk.data()), "set chunking for " + name);
   check(H5Pset_shuffle(dcpl.get()), "set shuffle for " + name);
   check(H5Pset_deflate(dcpl.get(), 1), "set compression for " + name);
-  const double fill = std::numeric_limits<double>::quiet_NaN();
-  check(H5Pset_fill_value(dcpl.get(), H5T_NATIVE_DOUBLE, &fill), "set the fill value of " + name);
+  // Last in the pipeline: the checksum covers the bytes as stored.
+  check(H5Pset_fletcher32(dcpl.get()), "set the Fletcher-32 checksum for " + name);
+  if (fill) check(H5Pset_fill_value(dcpl.get(), fill_type, fill), "set the fill value of " + name);
   check(H5Pset_fill_time(dcpl.get(), H5D_FILL_TIME_IFSET), "set the fill time of " + name);
   Handle dapl = dataset_access();
-  return Handle(check_id(H5Dcreate2(parent, name.c_str(), H5T_IEEE_F64LE, space.get(), H5P_DEFAULT,
-                                    dcpl.get(), dapl.get()),
-                         "create dataset " + name),
-                H5Dclose);
+  return Handle(
+      check_id(H5Dcreate2(parent, name.c_str(), file_type, space.get(), H5P_DEFAULT, dcpl.get(), dapl.get()),
+               "create dataset " + name),
+      H5Dclose);
+}
+
+}  // namespace
+
+Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
+                             const std::vector<hsize_t>& chunk) {
+  const double fill = std::numeric_limits<double>::quiet_NaN();
+  return create_chunked(parent, name, dims, chunk, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, &fill);
+}
+
+Handle create_int64_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
+                            const std::vector<hsize_t>& chunk) {
+  // HDF5's default fill (0) rather than a user-set one: netCDF-4 readers turn
+  // a user-set fill into _FillValue, and xarray then masks and makes floats.
+  return create_chunked(parent, name, dims, chunk, H5T_STD_I64LE, H5T_NATIVE_INT64, nullptr);
 }
 
 namespace {
 
 template <class T>
 Handle write_plain(hid_t parent, const std::string& name, const std::vector<T>& v, hid_t file_type,
-                   hid_t mem_type) {
+                   hid_t mem_type, bool checksum = true) {
   const hsize_t dims[1] = {v.size()};
   Handle space(check_id(H5Screate_simple(1, dims, nullptr), "make a dataspace"), H5Sclose);
-  Handle d(check_id(H5Dcreate2(parent, name.c_str(), file_type, space.get(), H5P_DEFAULT, H5P_DEFAULT,
-                               H5P_DEFAULT),
-                    "create dataset " + name),
-           H5Dclose);
+  // One storage chunk with a checksum (an empty dataset stays contiguous:
+  // HDF5 refuses chunks of size 0).
+  Handle dcpl(check_id(H5Pcreate(H5P_DATASET_CREATE), "make a dataset-creation list"), H5Pclose);
+  if (checksum && !v.empty()) {
+    check(H5Pset_chunk(dcpl.get(), 1, dims), "set chunking for " + name);
+    check(H5Pset_fletcher32(dcpl.get()), "set the Fletcher-32 checksum for " + name);
+  }
+  Handle d(
+      check_id(H5Dcreate2(parent, name.c_str(), file_type, space.get(), H5P_DEFAULT, dcpl.get(), H5P_DEFAULT),
+               "create dataset " + name),
+      H5Dclose);
   if (!v.empty())
     check(H5Dwrite(d.get(), mem_type, H5S_ALL, H5S_ALL, H5P_DEFAULT, v.data()), "write " + name);
   return d;
@@ -169,7 +226,10 @@ Handle write_vector(hid_t parent, const std::string& name, const std::vector<std
   std::vector<const char*> ptrs;
   for (const auto& s : v) ptrs.push_back(s.c_str());
   Handle type = utf8_string_type();
-  return write_plain(parent, name, ptrs, type.get(), type.get());
+  // HDF5 applies no filter to variable-length data ("not suitable for
+  // filters"), so strings go without a checksum; the cube reader checks its
+  // string axes by comparing the copies in the metric groups.
+  return write_plain(parent, name, ptrs, type.get(), type.get(), false);
 }
 
 std::vector<hsize_t> shape(hid_t dataset) {
@@ -205,6 +265,10 @@ void read_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vec
                 double* data) {
   block_io(dataset, start, count, H5T_NATIVE_DOUBLE, data, false);
 }
+void write_block_i64(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                     const std::int64_t* data) {
+  block_io(dataset, start, count, H5T_NATIVE_INT64, const_cast<std::int64_t*>(data), true);
+}
 void write_block_u8(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
                     const std::uint8_t* data) {
   block_io(dataset, start, count, H5T_NATIVE_UINT8, const_cast<std::uint8_t*>(data), true);
@@ -233,6 +297,65 @@ std::vector<std::string> read_strings(hid_t parent, const std::string& name) {
     Handle space(check_id(H5Dget_space(d.get()), "get a dataspace"), H5Sclose);
     H5Dvlen_reclaim(type.get(), space.get(), H5P_DEFAULT, raw.data());
   }
+  return out;
+}
+
+void read_every_chunk(hid_t dataset, const std::string& name) {
+  const auto dims = shape(dataset);
+  const std::size_t rank = dims.size();
+  hsize_t total = 1;
+  for (auto v : dims) total *= v;
+  if (total == 0) return;
+  Handle dcpl(check_id(H5Dget_create_plist(dataset), "get the creation list of " + name), H5Pclose);
+  std::vector<hsize_t> chunk = dims;
+  if (H5Pget_layout(dcpl.get()) == H5D_CHUNKED)
+    check(H5Pget_chunk(dcpl.get(), static_cast<int>(rank), chunk.data()), "get the chunk shape of " + name);
+  Handle ftype(check_id(H5Dget_type(dataset), "get the type of " + name), H5Tclose);
+  const bool vlen_string = H5Tis_variable_str(ftype.get()) > 0;
+  Handle mtype = vlen_string ? utf8_string_type()
+                             : Handle(check_id(H5Tget_native_type(ftype.get(), H5T_DIR_DEFAULT),
+                                               "get the memory type of " + name),
+                                      H5Tclose);
+  const std::size_t item = vlen_string ? sizeof(char*) : H5Tget_size(mtype.get());
+  std::size_t per_chunk = 1;
+  for (auto v : chunk) per_chunk *= v;
+  std::vector<unsigned char> buf(per_chunk * item);
+  Handle file_space(check_id(H5Dget_space(dataset), "get a dataspace"), H5Sclose);
+  // Odometer over the chunk grid, last dimension fastest.
+  std::vector<hsize_t> start(rank, 0), count(rank);
+  for (;;) {
+    for (std::size_t i = 0; i < rank; ++i) count[i] = std::min(chunk[i], dims[i] - start[i]);
+    check(H5Sselect_hyperslab(file_space.get(), H5S_SELECT_SET, start.data(), nullptr, count.data(), nullptr),
+          "select a chunk of " + name);
+    Handle mem_space(
+        check_id(H5Screate_simple(static_cast<int>(rank), count.data(), nullptr), "make a memory dataspace"),
+        H5Sclose);
+    check(H5Dread(dataset, mtype.get(), mem_space.get(), file_space.get(), H5P_DEFAULT, buf.data()),
+          "read " + name);
+    if (vlen_string) H5Dvlen_reclaim(mtype.get(), mem_space.get(), H5P_DEFAULT, buf.data());
+    if (rank == 0) return;
+    std::size_t i = rank;
+    while (i > 0) {
+      --i;
+      start[i] += chunk[i];
+      if (start[i] < dims[i]) break;
+      start[i] = 0;
+      if (i == 0) return;
+    }
+  }
+}
+
+std::vector<std::string> dataset_paths(hid_t file) {
+  std::vector<std::string> out;
+  auto visit = [](hid_t, const char* name, const H5O_info_t* info, void* data) -> herr_t {
+    if (info->type == H5O_TYPE_DATASET) {
+      std::string path(1, '/');
+      path.append(name);
+      static_cast<std::vector<std::string>*>(data)->push_back(std::move(path));
+    }
+    return 0;
+  };
+  check(H5Ovisit2(file, H5_INDEX_NAME, H5_ITER_INC, visit, &out, H5O_INFO_BASIC), "list the datasets");
   return out;
 }
 

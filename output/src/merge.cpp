@@ -139,11 +139,15 @@ class ShardReplay final : public engine::ResultSink {
 
   void read_block(hid_t file, const std::string& name, const std::vector<hsize_t>& start,
                   const std::vector<hsize_t>& count, std::vector<double>& out) const {
-    Handle d = open_dataset(file, name);
     std::size_t size = 1;
     for (auto v : count) size *= v;
     out.resize(size);
-    output::read_block(d.get(), start, count, out.data());
+    try {
+      Handle d = open_dataset(file, name);
+      output::read_block(d.get(), start, count, out.data());
+    } catch (const CubeError& e) {
+      refuse_damaged(paths_[current_shard_], name, e);  // InputError: exit 2, the .partial is removed
+    }
   }
 
   /// Chunk `id` as the run computed it: the same parts present (see

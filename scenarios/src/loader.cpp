@@ -12,8 +12,12 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
+#include <cstdlib>
 #include <filesystem>
 #include <fstream>
+#include <limits>
+#include <numeric>
 #include <set>
 #include <sstream>
 
@@ -24,6 +28,53 @@ namespace {
 using namespace detail;
 using engine::Scenario;
 namespace fs = std::filesystem;
+
+/// Decimal places of the shortest text that reads back as `x` ("0.005": 3,
+/// "1e-05": 5, "40": 0).
+int decimal_places(double x) {
+  const std::string t = fmt::format("{}", x);
+  const std::size_t e = t.find_first_of("eE");
+  const std::string mantissa = t.substr(0, e);
+  const std::size_t dot = mantissa.find('.');
+  const int frac = dot == std::string::npos ? 0 : static_cast<int>(mantissa.size() - dot - 1);
+  const int exponent = e == std::string::npos ? 0 : std::stoi(t.substr(e + 1));
+  return std::max(0, frac - exponent);
+}
+
+/// Decimal places of every point of a linear grid from a to b: with a = A /
+/// 10^D and b = B / 10^D (D the places of the inputs), the points a + i (b -
+/// a) / (k - 1) are decimals exactly when (k - 1) / gcd(k - 1, B - A) has no
+/// prime factor but 2 and 5, and then have D + max(powers) places. -1 when
+/// they are not all decimals (a count of 7 from 0 to 1: sixths) or need more
+/// than 15 places.
+int grid_places(double a, double b, std::int64_t k) {
+  const int d = std::max(decimal_places(a), decimal_places(b));
+  if (d > 15) return -1;
+  const double scale = std::pow(10.0, d);
+  const auto A = static_cast<std::int64_t>(std::llround(a * scale));
+  const auto B = static_cast<std::int64_t>(std::llround(b * scale));
+  if (k < 2) return d;
+  std::int64_t r = (k - 1) / std::gcd(k - 1, B - A);
+  int twos = 0, fives = 0;
+  for (; r % 2 == 0; r /= 2) ++twos;
+  for (; r % 5 == 0; r /= 5) ++fives;
+  const int places = d + std::max(twos, fives);
+  return r == 1 && places <= 15 ? places : -1;
+}
+
+/// A computed grid value moved to the decimal the user meant: from + i*step
+/// in binary floating point lands an ulp or two off the decimal (0.01 + 8 *
+/// 0.005 is 0.049999999999999996); `places` (from grid_places, or the
+/// places of from, to and step) says the exact point is a decimal with that
+/// many places, so the value rounded to them is read back (its nearest
+/// double) when that is within 4 ulps, as it is unless the arithmetic went
+/// wrong. places < 0: kept as computed.
+double nearest_decimal(double v, int places) {
+  if (places < 0) return v;
+  const double d = std::strtod(fmt::format("{:.{}f}", v, places).c_str(), nullptr);
+  const double ulp = std::nextafter(std::fabs(v), std::numeric_limits<double>::infinity()) - std::fabs(v);
+  return std::fabs(d - v) <= 4 * ulp ? d : v;
+}
 
 /// A value list, range with step, or count-spaced range. `kind` is "n" or "p".
 std::vector<double> axis_values(const Context& ctx, const toml::node& node, const std::string& key,
@@ -81,7 +132,9 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
       const double steps = std::floor((b - a) / s + 1e-9);
       if (steps > 1e7)
         ctx.fail(step, fmt::format("{}.step = {} gives more than 10^7 points", what, value_text(*step)));
-      for (double i = 0; i <= steps; ++i) out.push_back(integer ? a + i * s : std::min(b, a + i * s));
+      int places = std::max({decimal_places(a), decimal_places(b), decimal_places(s)});
+      if (places > 15) places = -1;
+      for (double i = 0; i <= steps; ++i) out.push_back(std::min(b, nearest_decimal(a + i * s, places)));
     } else {
       if (!count) {
         if (!integer) ctx.fail(&node, what + " needs 'count' or 'step'");
@@ -92,6 +145,7 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
         if (k > 10'000'000) ctx.fail(count, fmt::format("{}.count = {} is above 10^7", what, k));
         if (space == "logit" && (a <= 0 || b >= 1))
           ctx.fail(spacing, what + ": logit spacing needs 0 < from and to < 1");
+        const int places = space == "linear" ? grid_places(a, b, k) : -1;
         for (std::int64_t i = 0; i < k; ++i) {
           const double u = k == 1 ? 0.0 : static_cast<double>(i) / static_cast<double>(k - 1);
           double v = 0;
@@ -104,7 +158,11 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
             if (i == 0) v = a;
             if (i == k - 1) v = b;
           } else {
-            v = integer ? std::round(a + u * (b - a)) : (i == k - 1 ? b : a + u * (b - a));
+            // Linear: from + i * step, then the decimal it stands for; the
+            // logit form above stays as computed (its points are not decimals).
+            const double spacing_step = k == 1 ? 0.0 : (b - a) / static_cast<double>(k - 1);
+            v = i == k - 1 ? b : nearest_decimal(a + static_cast<double>(i) * spacing_step, places);
+            if (integer) v = std::round(v);
           }
           out.push_back(v);
         }

@@ -8,6 +8,7 @@
 #include "support.hpp"
 
 #include "cli_call.hpp"
+#include "output/damage.hpp"
 #include "covergrid/cli/cli.hpp"
 #include "covergrid/output/hdf5.hpp"
 
@@ -162,7 +163,7 @@ TEST_CASE("a shard cube holds its chunks only and records them", "[cli][e2e][sha
   CHECK(marked == ids.size());
   for (auto id : ids) CHECK(done[static_cast<std::size_t>(id)] == 1);
   // Shards hold no grid statistics of split rows (merge computes them).
-  const auto first = o::read_int64s(f.id(), "/axes/n");
+  const auto first = o::read_int64s(f.id(), "/summary/n");
   CHECK(first.size() == 6);
 }
 
@@ -215,6 +216,14 @@ TEST_CASE("merge refuses foreign, mismatched, overlapping, missing and incomplet
   refused({"merge", s1, s2, again, "-o", o_}, {s1, again, "are both shard 1/2: the shards overlap"}, out);
   refused({"merge", s1, s1, s2, "-o", o_}, {s1, "is given twice"}, out);
   refused({"merge", s1, "-o", o_}, {"1 of 2 shards is missing: 2/2"}, out);
+  // A shard with a damaged storage chunk (its checksum fails): refused, the
+  // shard and the dataset named, and no output (not even the .partial) left.
+  const std::string damaged = copy(s2, "damaged.h5");
+  damage_chunk(damaged, "/mc/coverage");
+  refused({"merge", s1, damaged, "-o", o_},
+          {damaged +
+           ": is damaged: dataset /mc/coverage has a storage chunk that fails its Fletcher-32 checksum"},
+          out);
   refused({"merge", three[2], three[0], "-o", o_}, {"1 of 3 shards is missing: 2/3"}, out);
   refused({"merge", s1, three[1], "-o", o_}, {s1, three[1], "different numbers N"}, out);
   const std::string unfinished = copy(s2, "unfinished.h5");

@@ -15,10 +15,10 @@ import numpy as np
 
 with h5py.File(sys.argv[1], "r") as f:
     assert int(f.attrs["complete"]) == 1
-    sizes = {d: f["axes/" + d].shape[0] for d in ["model", "side", "level", "method", "n", "p"]}
+    sizes = {d: f["exact/" + d].shape[0] for d in ["model", "side", "level", "method", "n", "p"]}
     assert sizes == {"model": 1, "side": 1, "level": 3, "method": 16, "n": 300, "p": 2000}, sizes
-    methods = [m.decode() if isinstance(m, bytes) else m for m in f["axes/method"][:]]
-    levels = f["axes/level"][:]
+    methods = [m.decode() if isinstance(m, bytes) else m for m in f["exact/method"][:]]
+    levels = f["exact/level"][:]
     shape = tuple(sizes.values())
     metrics = {}
     for name in ["coverage", "miss_low", "miss_high", "width", "width_sd", "degenerate", "overshoot"]:

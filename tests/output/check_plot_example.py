@@ -65,7 +65,8 @@ def check_series(csv_path, cube, dataset, pos, n_positions, n_values):
     """The CSV holds, n by n in the order asked, the cube's row at these positions."""
     ns, ps, cs = read_csv(csv_path)
     with h5py.File(cube, "r") as f:
-        data, p = f[dataset], f["axes/p"][()]
+        data = f[dataset]
+        p = data.dims[data.ndim - 1][0][()]  # the p scale attached to the dataset
         want = np.concatenate([data[(*pos, k)] for k in n_positions])
         # Guard: the neighbouring level's row differs, so a wrong selection would show.
         other = (pos[0], pos[1], 1 - pos[2], pos[3], n_positions[0])

@@ -122,7 +122,7 @@ def check_case(cube_path, html_path, expect_source, max_bins):
     with h5py.File(cube_path, "r") as f:
         source = "exact" if "exact" in f else "mc"
         assert source == expect_source
-        axes = {k: f["axes/" + k][()] for k in ("model", "side", "level", "method", "n", "p")}
+        axes = {k: f[source + "/" + k][()] for k in ("model", "side", "level", "method", "n", "p")}
         models = [text(v) for v in axes["model"]]
         sides = [text(v) for v in axes["side"]]
         methods = [text(v) for v in axes["method"]]

@@ -3,6 +3,9 @@
 // scenarios' outputs; damaged and foreign files rejected with InputError.
 #include "support.hpp"
 
+#include "cli/cli_call.hpp"
+#include "output/damage.hpp"
+
 #include "covergrid/engine/error.hpp"
 #include "covergrid/engine/run.hpp"
 #include "covergrid/output/cube.hpp"
@@ -85,13 +88,44 @@ TEST_CASE("the cube holds what the contract says", "[output][cube]") {
   CHECK(o::get_attr_string(root, "shard") == "all");
   CHECK(o::get_attr_int(root, "complete") == 1);
 
-  CHECK(o::read_strings(root, "/axes/model") == std::vector<std::string>{"binomial"});
-  CHECK(o::read_strings(root, "/axes/side") == std::vector<std::string>{"two-sided", "upper-bound"});
-  CHECK(o::read_doubles(root, "/axes/level") == s.levels);
-  CHECK(o::read_strings(root, "/axes/method") ==
-        std::vector<std::string>{"wilson", "blaker", "jeffreys(boundary=false)"});
-  CHECK(o::read_int64s(root, "/axes/n") == std::vector<std::int64_t>{3, 10, 31});
-  CHECK(o::read_doubles(root, "/axes/p") == s.p);
+  // Every metric group holds the axes (this scenario has no Monte Carlo).
+  CHECK_FALSE(o::exists(root, "axes"));
+  CHECK_FALSE(o::exists(root, "mc"));
+  for (const std::string g : {"/exact/", "/summary/"}) {
+    INFO(g);
+    CHECK(o::read_strings(root, g + "model") == std::vector<std::string>{"binomial"});
+    CHECK(o::read_strings(root, g + "side") == std::vector<std::string>{"two-sided", "upper-bound"});
+    CHECK(o::read_doubles(root, g + "level") == s.levels);
+    CHECK(o::read_strings(root, g + "method") ==
+          std::vector<std::string>{"wilson", "blaker", "jeffreys(boundary=false)"});
+    CHECK(o::read_int64s(root, g + "n") == std::vector<std::int64_t>{3, 10, 31});
+    CHECK(o::read_doubles(root, g + "p") == s.p);
+  }
+  // Every numeric dataset is chunked with a Fletcher-32 checksum (HDF5
+  // filters no variable-length strings), and every dataset of a metric group
+  // has a long_name (and units, but for the string labels).
+  for (const auto& name : o::dataset_paths(root)) {
+    INFO(name);
+    const std::string leaf = name.substr(name.rfind('/') + 1);
+    const bool label = leaf == "model" || leaf == "side" || leaf == "method";
+    o::Handle d = o::open_dataset(root, name);
+    o::Handle dcpl(H5Dget_create_plist(d.get()), H5Pclose);
+    unsigned flags = 0;
+    std::size_t nelmts = 0;
+    unsigned config = 0;
+    CHECK((H5Pget_filter_by_id2(dcpl.get(), H5Z_FILTER_FLETCHER32, &flags, &nelmts, nullptr, 0, nullptr,
+                                &config) >= 0) == !label);
+    if (name.rfind("/progress/", 0) == 0) continue;
+    CHECK(o::has_attr(d.get(), "long_name"));
+    CHECK(o::has_attr(d.get(), "units") == !label);
+  }
+  {
+    o::Handle d = o::open_dataset(root, "/exact/coverage");
+    CHECK(o::get_attr_string(d.get(), "units") == "1");
+    CHECK(o::get_attr_string(d.get(), "long_name") == "exact coverage probability P(L <= p <= U)");
+    o::Handle n = o::open_dataset(root, "/summary/n");
+    CHECK(o::get_attr_string(n.get(), "units") == "count");
+  }
 
   o::Handle jg = o::open_group(root, "/methods/jeffreys(boundary=false)");
   CHECK(o::get_attr_string(jg.get(), "id") == "jeffreys");
@@ -113,7 +147,7 @@ TEST_CASE("the cube holds what the contract says", "[output][cube]") {
     o::Handle d = o::open_dataset(root, name);
     // Every axis scale is attached to its dimension and the dimension is labelled.
     for (unsigned i = 0; i < 6; ++i) {
-      o::Handle scale = o::open_dataset(root, std::string("/axes/") + o::axis_names[i]);
+      o::Handle scale = o::open_dataset(root, std::string("/exact/") + o::axis_names[i]);
       CHECK(H5DSis_attached(d.get(), scale.get(), i) > 0);
       char label[32] = {};
       H5DSget_label(d.get(), i, label, sizeof label);
@@ -236,6 +270,74 @@ TEST_CASE("foreign and damaged files are rejected as bad input", "[output][cube]
   auto s = scenario_from(text, dir.path().string());
   s.cube_path = text_file;
   CHECK_THROWS_AS(o::inspect_output(s, false), covergrid::InputError);
+}
+
+TEST_CASE("a damaged chunk is refused by every reader, naming the file and the dataset",
+          "[output][cube][bad-input][checksum]") {
+  using covergrid::test::call;
+  ScratchDir dir("damaged");
+  const auto s = scenario_from(std::string(text) + R"(
+[evaluate]
+replicates = 300
+)",
+                               dir.path().string());
+  run_to_cube(s);
+  {
+    // The replicate counts are integers in the file.
+    o::File f = o::File::open(s.cube_path, false);
+    o::Handle d = o::open_dataset(f.id(), "/mc/replicates");
+    o::Handle t(H5Dget_type(d.get()), H5Tclose);
+    CHECK(H5Tget_class(t.get()) == H5T_INTEGER);
+    CHECK(H5Tget_size(t.get()) == 8);
+    o::Handle u = o::open_dataset(f.id(), "/mc/coverage");
+    CHECK(o::get_attr_string(u.get(), "long_name") == "simulated coverage probability P(L <= p <= U)");
+    CHECK(o::get_attr_string(d.get(), "units") == "count");
+  }
+  const auto intact = call({"inspect", s.cube_path});
+  CHECK(intact.status == 0);
+  CHECK(intact.out.find("checksums: every chunk of all ") != std::string::npos);
+  CHECK(o::CubeReader(s.cube_path).mc_replicates(0, 0) == std::vector<double>(s.p.size(), 300.0));
+
+  // A chunk every reader reads (rank and the headline read the summaries),
+  // and a chunk of a metric only inspect and report read.
+  for (const std::string dataset : {"/summary/mean_width", "/exact/coverage", "/mc/replicates"}) {
+    DYNAMIC_SECTION(dataset) {
+      const std::string cube = dir.file("damaged.h5");
+      fs::copy_file(s.cube_path, cube, fs::copy_options::overwrite_existing);
+      covergrid::test::damage_chunk(cube, dataset);
+      const std::string html = dir.file("damaged.html");
+      std::vector<std::vector<std::string>> commands = {{"inspect", cube}, {"report", cube, "-o", html}};
+      if (dataset == "/summary/mean_width") commands.push_back({"rank", cube});
+      for (const auto& args : commands) {
+        INFO(args[0]);
+        const auto r = call(args);
+        CHECK(r.status == 2);
+        CHECK(r.err.find(cube + ": is damaged: dataset " + dataset +
+                         " has a storage chunk that fails its Fletcher-32 checksum") != std::string::npos);
+        CHECK(r.err.find('\n') == r.err.size() - 1);  // one line
+      }
+      CHECK_FALSE(fs::exists(html));
+      CHECK_FALSE(fs::exists(dir.file("damaged-report.html")));
+    }
+  }
+  // The string axes carry no checksum; inspect compares the groups' copies.
+  {
+    const std::string cube = dir.file("relabelled.h5");
+    fs::copy_file(s.cube_path, cube, fs::copy_options::overwrite_existing);
+    {
+      o::File f = o::File::open(cube, true);
+      o::Handle d = o::open_dataset(f.id(), "/mc/method");
+      o::Handle t(H5Dget_type(d.get()), H5Tclose);
+      const char* labels[] = {"wilson", "blaker", "jeffreys"};
+      o::check(H5Dwrite(d.get(), t.get(), H5S_ALL, H5S_ALL, H5P_DEFAULT, labels), "relabel");
+    }
+    const auto r = call({"inspect", cube});
+    CHECK(r.status == 2);
+    CHECK(r.err.find(cube + ": is damaged: dataset /mc/method differs from /summary/method") !=
+          std::string::npos);
+  }
+  // The undamaged cube is still fine and undisturbed by the copies.
+  CHECK(call({"rank", s.cube_path}).status == 0);
 }
 
 TEST_CASE("summary tables are written from the cube", "[output][tables]") {

@@ -9,7 +9,9 @@
 #include <catch2/catch.hpp>
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <cmath>
+#include <cstdlib>
 #include <filesystem>
 #include <fstream>
 #include <sstream>
@@ -76,6 +78,64 @@ tables = ""
   CHECK(t.cube_path == base + "/sub/x.h5");
   CHECK(t.tables_prefix.empty());
   CHECK(t.exact);
+}
+
+/// The double nearest to the decimal `units` * 10^exponent, parsed from its
+/// digits (strtod rounds correctly: C17 7.22.1.3 with the usual IEEE libc).
+double decimal(long units, int exponent) {
+  return std::strtod(fmt::format("{}e{}", units, exponent).c_str(), nullptr);
+}
+
+TEST_CASE("linear grids hold the decimals the user wrote", "[scenarios]") {
+  covergrid::test::ScratchDir dir("decimals");
+  const auto s = scenario_from(R"(
+[grid]
+n = { from = 10, to = 40, count = 7 }
+p = { from = 0.01, to = 0.99, count = 197 }
+levels = 0.95
+[[method]]
+id = "wald"
+)",
+                               dir.path().string());
+  // 0.01 + i * 0.005 = (10 + 5 i) / 1000 exactly, as decimals.
+  REQUIRE(s.p.size() == 197);
+  std::size_t off = 0;
+  for (std::size_t i = 0; i < s.p.size(); ++i) {
+    const double want = decimal(10 + 5 * static_cast<long>(i), -3);
+    if (s.p[i] != want) ++off;
+    CHECK(s.p[i] == want);
+  }
+  CHECK(off == 0);
+  CHECK(std::find(s.p.begin(), s.p.end(), 0.05) != s.p.end());
+  CHECK(std::find(s.p.begin(), s.p.end(), 0.35) != s.p.end());
+  CHECK(s.n == std::vector<int>{10, 15, 20, 25, 30, 35, 40});
+
+  // The step form too: 0.1 + i * 0.1 is 0.30000000000000004 at i = 2 in
+  // binary arithmetic.
+  const auto t = scenario_from(R"(
+[grid]
+n = 5
+p = { from = 0.1, to = 0.9, step = 0.1 }
+levels = 0.95
+[[method]]
+id = "wald"
+)",
+                               dir.path().string());
+  REQUIRE(t.p.size() == 9);
+  for (std::size_t i = 0; i < t.p.size(); ++i) CHECK(t.p[i] == decimal(static_cast<long>(i) + 1, -1));
+
+  // A step with no short decimal stays as computed: 0 + i / 6.
+  const auto u = scenario_from(R"(
+[grid]
+n = 5
+p = { from = 0, to = 1, count = 7 }
+levels = 0.95
+[[method]]
+id = "wald"
+)",
+                               dir.path().string());
+  REQUIRE(u.p.size() == 7);
+  for (std::size_t i = 1; i + 1 < u.p.size(); ++i) CHECK(u.p[i] == static_cast<double>(i) * (1.0 / 6.0));
 }
 
 TEST_CASE("the bundled demo and example scenarios load", "[scenarios]") {

@@ -2,12 +2,16 @@
 /// The result cube (design section 8): writing it as a ResultSink, with
 /// resume, and reading it back.
 ///
-/// Layout: root attributes format, format_version, tool_version, title,
-/// scenario, scenario_sha256, seed, created_utc, shard, complete;
-/// /axes/{model,side,level,method,n,p} dimension scales; /methods/<label>
-/// groups; /exact/<metric> float64 [model, side, level, method, n, p];
-/// /summary/<stat> float64 [model, side, level, method, n]; /progress/done
-/// uint8 [chunk] with attributes n_block and p_block. A shard cube (run
+/// Layout (format version 2): root attributes format, format_version,
+/// tool_version, title, scenario, scenario_sha256, seed, created_utc, shard,
+/// complete; /methods/<label> groups; metric groups /exact (float64
+/// [model, side, level, method, n, p] per metric), /mc (the same, and int64
+/// replicates [model, n, p]) and /summary (float64 [model, side, level,
+/// method, n] per statistic), each holding its own copy of the axes
+/// {model,side,level,method,n,p} as dimension scales, so that netCDF-4
+/// readers see each group as labelled arrays; every metric dataset carries
+/// long_name and units; /progress/done uint8 [chunk] with attributes n_block
+/// and p_block. Every dataset is chunked with a Fletcher-32 checksum. A shard cube (run
 /// --shard K/N) has the same layout with only its chunks written: shard =
 /// "K/N", /progress/done 1 for its chunks, /progress/shard_chunks (int64, its
 /// chunk ids), complete = 1 once every one of them is in; the grid statistics
@@ -108,8 +112,14 @@ class CubeWriter final : public engine::ResultSink {
   SplitStats split_stats_;
 };
 
+/// Throws the InputError for a dataset of `path` that cannot be read: a
+/// storage chunk failing its checksum, or another HDF5 failure `e`.
+[[noreturn]] void refuse_damaged(const std::string& path, const std::string& dataset, const CubeError& e);
+
 /// A cube opened for reading; validates the format on open (InputError if the
-/// file is not a covergrid cube of a supported version).
+/// file is not a covergrid cube of a supported version). Every read verifies
+/// the checksums of the chunks it touches; a damaged chunk is an InputError
+/// naming the file and the dataset.
 class CubeReader {
  public:
   explicit CubeReader(const std::string& path);
@@ -126,6 +136,10 @@ class CubeReader {
   std::vector<std::int64_t> n;
   /// Per method label: its attributes (id, name, family, reference, param.*).
   std::map<std::string, std::map<std::string, std::string>> method_info;
+
+  /// Reads every chunk of every dataset (verifying every checksum); returns
+  /// the number of datasets. InputError at the first damaged chunk.
+  std::size_t verify() const;
 
   bool has_exact() const;
   bool has_mc() const;
@@ -154,6 +168,8 @@ class CubeReader {
  private:
   std::vector<double> row(const std::string& dataset, std::size_t model, std::size_t side, std::size_t level,
                           std::size_t method, std::size_t n_index) const;
+  std::vector<double> block(const std::string& dataset, const std::vector<hsize_t>& start,
+                            const std::vector<hsize_t>& count) const;
   std::string path_;
   File file_;
   bool complete_ = false;

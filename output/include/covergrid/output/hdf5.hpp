@@ -50,9 +50,13 @@ class Handle {
   Closer closer_ = nullptr;
 };
 
-/// Throws CubeError(context + what) when status < 0; returns the value.
+/// Throws CubeError(context + what) when status < 0; returns the value. The
+/// message ends with HDF5's own innermost reason when it gave one (e.g. "data
+/// error detected by Fletcher32 checksum").
 hid_t check_id(hid_t id, const std::string& what);
 void check(herr_t status, const std::string& what);
+/// True when a CubeError's message says a storage chunk failed its checksum.
+bool is_checksum_failure(const CubeError& e);
 
 class File {
  public:
@@ -74,10 +78,17 @@ Handle open_group(hid_t parent, const std::string& name);
 bool exists(hid_t parent, const std::string& path);
 Handle open_dataset(hid_t parent, const std::string& name);
 
-/// A chunked, shuffled and deflated float64 dataset filled with NaN.
+/// A chunked, shuffled and deflated float64 dataset filled with NaN, every
+/// storage chunk guarded by a Fletcher-32 checksum (HDF5 verifies it on
+/// every read and fails the read of a damaged chunk).
 Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
                              const std::vector<hsize_t>& chunk);
-/// A 1-D dataset of doubles / int64 / uint8 / UTF-8 strings, written at once.
+/// The same for int64 values (HDF5's default fill value, 0).
+Handle create_int64_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
+                            const std::vector<hsize_t>& chunk);
+/// A 1-D dataset of doubles / int64 / uint8 / UTF-8 strings, written at once
+/// (numbers: one storage chunk with a Fletcher-32 checksum when not empty;
+/// variable-length strings: contiguous, as HDF5 filters no such data).
 Handle write_vector(hid_t parent, const std::string& name, const std::vector<double>& v);
 Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::int64_t>& v);
 Handle write_vector(hid_t parent, const std::string& name, const std::vector<std::uint8_t>& v);
@@ -90,6 +101,8 @@ void write_block(hid_t dataset, const std::vector<hsize_t>& start, const std::ve
                  const double* data);
 void read_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
                 double* data);
+void write_block_i64(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
+                     const std::int64_t* data);
 void write_block_u8(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
                     const std::uint8_t* data);
 
@@ -97,6 +110,13 @@ std::vector<double> read_doubles(hid_t parent, const std::string& name);
 std::vector<std::int64_t> read_int64s(hid_t parent, const std::string& name);
 std::vector<std::uint8_t> read_u8s(hid_t parent, const std::string& name);
 std::vector<std::string> read_strings(hid_t parent, const std::string& name);
+
+/// Reads every storage chunk of a dataset (one chunk at a time, so memory
+/// stays at one chunk), which makes HDF5 verify each chunk's checksum;
+/// throws CubeError at the first chunk that cannot be read.
+void read_every_chunk(hid_t dataset, const std::string& name);
+/// The paths of every dataset in the file, in name order ("/exact/coverage").
+std::vector<std::string> dataset_paths(hid_t file);
 
 // Attributes on any object.
 void set_attr(hid_t obj, const std::string& name, const std::string& value);
