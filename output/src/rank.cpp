@@ -230,12 +230,12 @@ std::string rank_csv(const CubeReader& cube, const std::vector<RankGroup>& group
       "mean_width,paired_difference,paired_se\n";
   for (const auto& g : groups)
     for (const auto& e : g.entries)
-      s += fmt::format("{},{},{},{},{},{},{},\"{}\",{},{:.17g},{},{:.17g},{:.17g},{:.17g},{},{}\n",
-                       cube.models[g.model], cube.sides[g.side], cube.levels[g.level], g.n_lo, g.n_hi,
-                       g.simulated ? "monte-carlo" : "exact", e.rank, cube.methods[e.method],
-                       e.eligible ? 1 : 0, e.worst_coverage, e.worst_n, e.mean_coverage, e.rms_deviation,
-                       e.mean_width, e.has_pair ? fmt::format("{:.17g}", e.pair_difference) : "",
-                       e.has_pair ? fmt::format("{:.17g}", e.pair_se) : "");
+      s += fmt::format(
+          "{},{},{},{},{},{},{},\"{}\",{},{},{},{},{},{},{},{}\n", cube.models[g.model], cube.sides[g.side],
+          cube.levels[g.level], g.n_lo, g.n_hi, g.simulated ? "monte-carlo" : "exact", e.rank,
+          cube.methods[e.method], e.eligible ? 1 : 0, csv_number(e.worst_coverage), e.worst_n,
+          csv_number(e.mean_coverage), csv_number(e.rms_deviation), csv_number(e.mean_width),
+          e.has_pair ? csv_number(e.pair_difference) : "", e.has_pair ? csv_number(e.pair_se) : "");
   return s;
 }
 

@@ -55,6 +55,8 @@ void write_text_atomically(const std::string& path, const std::string& text) {
   }
 }
 
+std::string csv_number(double v) { return std::isfinite(v) ? fmt::format("{}", v) : std::string(); }
+
 std::string wrap_text(const std::string& text, std::size_t width) {
   std::string out, line;
   std::size_t start = 0;
@@ -184,7 +186,7 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
                                cube.methods[m], cube.n[i]);
             for (const auto& v : values) {
               csv += ',';
-              csv += num(v[at], 10);
+              csv += csv_number(v[at]);
             }
             csv += '\n';
           }
@@ -195,9 +197,9 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
       "mean_rms_deviation,mean_share_below,mean_width\n";
   for (const auto& r : rank)
     rcsv += fmt::format("{},{},{},{},\"{}\",{},{},{},{},{},{}\n", cube.models[r.model], cube.sides[r.side],
-                        cube.levels[r.level], r.rank, cube.methods[r.method], num(r.worst_inf, 10),
-                        r.worst_inf_n, num(r.mean_coverage, 10), num(r.rms_deviation, 10),
-                        num(r.share_below, 10), num(r.mean_width, 10));
+                        csv_number(cube.levels[r.level]), r.rank, cube.methods[r.method],
+                        csv_number(r.worst_inf), r.worst_inf_n, csv_number(r.mean_coverage),
+                        csv_number(r.rms_deviation), csv_number(r.share_below), csv_number(r.mean_width));
 
   std::string md =
       fmt::format("# {}\n\n", cube.attr("title").empty() ? "covergrid results" : cube.attr("title"));

@@ -173,7 +173,7 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
     for (std::size_t i = 0; i < claims.size(); ++i) {
       const Claim& c = claims[i];
       const Verdict& v = verdicts[i];
-      auto num = [](double x) { return std::isfinite(x) ? fmt::format("{}", x) : std::string(); };
+      auto num = [](double x) { return csv_number(x); };
       out += fmt::format(
           "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
           csv_field(c.name), engine::outcome_name(v.outcome), csv_field(c.method.label), num(c.level),

@@ -66,7 +66,7 @@ TEST_CASE("intervals prints every method's limits", "[cli]") {
   const auto one =
       call({"intervals", "5", "50", "--side", "upper-bound", "--method", "blaker", "--method", "wilson"});
   CHECK(one.status == 0);
-  CHECK(one.out.find("blaker            defines only the two-sided interval") != std::string::npos);
+  CHECK(one.out.find("blaker  defines only the two-sided interval") != std::string::npos);
 }
 
 TEST_CASE("bad command-line values give exit 2 and name the option", "[cli][bad-input]") {

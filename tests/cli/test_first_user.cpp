@@ -283,3 +283,54 @@ TEST_CASE("intervals groups methods by their guarantee and draws each interval",
   CHECK(csv.out.rfind("method,x,n,level,side,lower,upper,raw_lower,raw_upper\n\"wald\",2,10,0.95,two-sided,",
                       0) == 0);
 }
+
+TEST_CASE("every CSV number is the shortest text that reads back as the same double",
+          "[cli][first-user][csv]") {
+  ScratchDir dir("csv-policy");
+  std::ofstream(dir.file("c.toml")) << R"([grid]
+n = { from = 5, to = 30 }
+p = { from = 0.01, to = 0.99, count = 99 }
+levels = [0.9, 0.95]
+[[method]]
+id = "wilson"
+[[method]]
+id = "clopper-pearson"
+[output]
+cube = "c.h5"
+tables = "c"
+)";
+  REQUIRE(call({"run", dir.file("c.toml"), "--quiet"}).status == 0);
+  std::vector<std::pair<std::string, std::string>> files = {
+      {"summary", slurp(dir.file("c-summary.csv"))},
+      {"ranking", slurp(dir.file("c-ranking.csv"))},
+      {"rank", call({"rank", dir.file("c.h5"), "--format", "csv"}).out},
+      {"audit", call({"audit", "--method", "wald", "--level", "0.95", "--n", "5:30", "--p", "0.01:0.99",
+                      "--format", "csv"})
+                    .out},
+      {"intervals", call({"intervals", "7", "30", "--csv"}).out}};
+  std::size_t numbers = 0, long_ones = 0;
+  for (const auto& [name, text] : files) {
+    const auto rows = csv_rows(text);
+    REQUIRE(rows.size() > 1);
+    for (std::size_t r = 1; r < rows.size(); ++r)
+      for (const auto& field : rows[r]) {
+        if (field.empty() || field.find_first_not_of("0123456789.-+e") != std::string::npos) continue;
+        if (field.find('.') == std::string::npos && field.find('e') == std::string::npos)
+          continue;  // integer
+        const double v = std::stod(field);
+        INFO(name << ": " << field);
+        CHECK(fmt::format("{}", v) == field);  // shortest round-trip form (fmt's default)
+        ++numbers;
+        long_ones += field.size() > 12;
+      }
+  }
+  CHECK(numbers > 1000);
+  CHECK(long_ones > 100);  // full precision kept where the value needs it
+  // The summary CSV's values are the cube's, bit for bit.
+  covergrid::output::CubeReader cube(dir.file("c.h5"));
+  const auto inf = cube.summary("inf_coverage");
+  const auto rows = csv_rows(slurp(dir.file("c-summary.csv")));
+  const std::size_t col = column(rows[0], "inf_coverage");
+  // Rows are (model, side, level, method, n) in axis order.
+  for (std::size_t r = 1; r < rows.size(); ++r) CHECK(std::stod(rows[r][col]) == inf[r - 1]);
+}

@@ -109,9 +109,11 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
               throw std::runtime_error(
                   fmt::format("re-drawn coverage differs from the cube at n = {}, p = {}", n, s.p[pi]));
             if (csv)
-              out << fmt::format("{},{},{},{},{},{},{:.17g},{:.17g},{:.17g},{:.17g}\n", s.models[model].label,
-                                 methods::side_name(s.sides[side]), s.levels[level], n, s.p[pi], c.replicates,
-                                 c.coverage_a, c.coverage_b, c.difference, c.difference_se);
+              out << fmt::format("{},{},{},{},{},{},{},{},{},{}\n", s.models[model].label,
+                                 methods::side_name(s.sides[side]), output::csv_number(s.levels[level]), n,
+                                 output::csv_number(s.p[pi]), c.replicates, output::csv_number(c.coverage_a),
+                                 output::csv_number(c.coverage_b), output::csv_number(c.difference),
+                                 output::csv_number(c.difference_se));
             sum += c.difference;
             lo = std::min(lo, c.difference);
             hi = std::max(hi, c.difference);

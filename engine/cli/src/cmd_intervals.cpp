@@ -95,8 +95,9 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
     for (const auto& m : list) {
       if (!m.method->supports(side)) continue;
       const auto lim = methods::interval(*m.method, x, n, level, side);
-      out << fmt::format("\"{}\",{},{},{},{},{:.17g},{:.17g},{:.17g},{:.17g}\n", m.label, x, n, level,
-                         side_text, lim.lower, lim.upper, lim.raw_lower, lim.raw_upper);
+      out << fmt::format("\"{}\",{},{},{},{},{},{},{},{}\n", m.label, x, n, output::csv_number(level),
+                         side_text, output::csv_number(lim.lower), output::csv_number(lim.upper),
+                         output::csv_number(lim.raw_lower), output::csv_number(lim.raw_upper));
     }
     return exit_ok;
   }

@@ -44,6 +44,12 @@ std::string ranking_footnote(bool exact);
 /// column, and the cautions.
 std::string headline(const CubeReader& cube);
 
+/// A number in CSV output, by the one precision policy of every CSV file
+/// covergrid writes: the shortest decimal text that reads back as the same
+/// double (round-trip exact, e.g. 0.95, not 0.94999999999999996); NaN and
+/// infinities (undefined values) as an empty field.
+std::string csv_number(double v);
+
 /// The cautions every report and table carries.
 extern const char* const coverage_caution;
 
