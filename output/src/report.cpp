@@ -2,14 +2,17 @@
 // SVG; no scripts, fonts, images or links to anything outside the page), in
 // markup that also parses as XHTML (every element closed, every text and
 // attribute escaped). The page shows, per (model, side, level):
-//   - coverage against p for the chosen n, one small panel per (method, n),
-//     with the nominal level (for a simulated cube a band of +-1.96 standard
+//   - coverage against p for the chosen n, one SVG of panels per method (at
+//     most three panels a row, plot areas of at least 300 x 170 pixels), with
+//     the nominal level (for a simulated cube a band of +-1.96 standard
 //     errors around the estimate);
 //   - a heat map per method of coverage minus nominal over (n, p), binned
 //     down to at most max_bins x max_bins cells, each bin showing the
 //     minimum coverage over its cells;
 //   - expected width against p for the chosen n, all methods in one panel per n;
-//   - mean width against worst-case coverage, one point per method;
+//   - mean width against worst-case coverage, one point per method, labels
+//     placed by svg::place_labels, far-off methods (worst case below
+//     nominal - 4 alpha) in a strip under a broken vertical axis;
 //   - the summary statistics at the chosen n and the ranking over all n
 //     (output::ranking());
 // and, once, the cube's provenance (title, seed, versions, created time,
@@ -37,10 +40,21 @@
 //     bin holds no value); the row's <rect class="kK"> elements each cover
 //     the bins data-bins="a b" (inclusive) of colour class K.
 //   - the colour classes are the <rect class="heat-key kK"> of the legend,
-//     with data-lo and data-hi: bin minimum minus nominal in [lo, hi).
+//     with data-lo and data-hi, the class edges of bin minimum minus nominal;
+//     a bin is in the class whose lower edge it reaches and whose upper edge
+//     it does not: an edge e <= 0 is reached when engine::meets_coverage(v,
+//     nominal + e) (v >= nominal + e - slack; the legend's <svg> carries
+//     data-slack), an edge e > 0 when v - nominal >= e.
 //   - the trade-off points are <circle class="point"> with data-method,
-//     data-x (mean width: the ranking's mean over n of the grid mean width)
-//     and data-y (the ranking's worst coverage).
+//     data-x (mean width: the ranking's mean over n of the grid mean width),
+//     data-y (the ranking's worst coverage), data-panel ("main", or "strip"
+//     for a far-off method under the broken axis) and data-meets-nominal
+//     ("yes"/"no" by engine::meets_coverage); their labels are
+//     <text class="point-label"> with data-method and data-box ("x0 y0 x1
+//     y1", the box the placement kept clear), the nominal line's label a
+//     <text class="nominal-label"> with data-box; a broken axis is a
+//     <g class="axis-break"> with data-threshold (nominal - 4 alpha),
+//     data-y-main and data-y-strip (the two vertical ranges).
 //   - numeric table cells carry data-value with the unrounded figure.
 #include "covergrid/output/report.hpp"
 
@@ -145,7 +159,8 @@ std::size_t heat_class(double coverage, double level, const ClassBounds& b) {
   std::size_t k = 0;
   for (std::size_t j = 1; j < class_colours.size(); ++j) {
     const double edge = b.lo[j];
-    const bool reaches = edge <= 0 ? engine::meets_coverage(coverage, level + edge) : coverage - level >= edge;
+    const bool reaches =
+        edge <= 0 ? engine::meets_coverage(coverage, level + edge) : coverage - level >= edge;
     if (!reaches) break;
     k = j;
   }
@@ -553,7 +568,8 @@ std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_
   std::string svgs;
   for (const std::size_t m : present) {
     Canvas svg(panel_w * static_cast<double>(cols), height,
-               "Coverage against p, " + cube_.methods[m] + ", " + combo_title(c), {{"class", "coverage-panels"}});
+               "Coverage against p, " + cube_.methods[m] + ", " + combo_title(c),
+               {{"class", "coverage-panels"}});
     svg.text(6, 15, cube_.methods[m], {{"class", "row-title"}});
     for (std::size_t k = 0; k < count; ++k) {
       const std::size_t ni = n_index_[k];
@@ -606,7 +622,8 @@ std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_
   }
   std::string caption = fmt::format(
       "{} coverage P(L ≤ p ≤ U) against the true p, one row of panels per method and one panel per n; the "
-      "dashed line is the nominal {}. The vertical axis runs from {} to 1: lower coverage leaves the panel at "
+      "dashed line is the nominal {}. The vertical axis runs from {} to 1: lower coverage leaves the panel "
+      "at "
       "its foot.",
       exact_ ? "Exact" : "Simulated", level_text(level), fmt::format("{:g}", y_lo));
   if (p_scale_ == svg::Scale::logit) caption += " The p axis is in log-odds, as the grid is.";
@@ -616,7 +633,8 @@ std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_
         "consecutive points ({} points at most).",
         cube_.p.size(), opt_.max_points);
   if (!exact_) caption += " The band spans ±1.96 standard errors of the estimate.";
-  return "<figure class=\"coverage\">\n" + svgs + "<figcaption>" + escape(caption) + "</figcaption>\n</figure>\n";
+  return "<figure class=\"coverage\">\n" + svgs + "<figcaption>" + escape(caption) +
+         "</figcaption>\n</figure>\n";
 }
 
 std::string Report::heat_legend(const Combo& c) const {
@@ -866,7 +884,8 @@ std::string Report::tradeoff_figure(const Combo& c, const std::vector<RankingRow
   // (below it when the line runs along the top); an obstacle for the point labels.
   const std::string nominal_label = "nominal " + level_text(level);
   double nominal_base = y(level) - 5;
-  if (nominal_base - svg::text_ascent * label_font < y.to) nominal_base = y(level) + 5 + svg::text_ascent * label_font;
+  if (nominal_base - svg::text_ascent * label_font < y.to)
+    nominal_base = y(level) + 5 + svg::text_ascent * label_font;
   const svg::Box nominal_box = svg::text_box(x.to - 4, nominal_base, nominal_label, label_font, "end");
   svg.text(x.to - 4, nominal_base, nominal_label,
            {{"class", "nominal-label"}, {"text-anchor", "end"}, {"data-box", box_text(nominal_box)}});
@@ -888,7 +907,8 @@ std::string Report::tradeoff_figure(const Combo& c, const std::vector<RankingRow
       const double nx = std::clamp(cx, spots[k].box.x0, spots[k].box.x1),
                    ny = std::clamp(cy, spots[k].box.y0, spots[k].box.y1);
       const double d = std::hypot(nx - cx, ny - cy);
-      if (d > radius) svg.line(cx + (nx - cx) * radius / d, cy + (ny - cy) * radius / d, nx, ny, {{"class", "leader"}});
+      if (d > radius)
+        svg.line(cx + (nx - cx) * radius / d, cy + (ny - cy) * radius / d, nx, ny, {{"class", "leader"}});
     }
     for (std::size_t k = 0; k < which.size(); ++k) {
       const RankingRow& r = rows[which[k]];
@@ -909,9 +929,7 @@ std::string Report::tradeoff_figure(const Combo& c, const std::vector<RankingRow
     }
     for (std::size_t k = 0; k < which.size(); ++k)
       svg.text(spots[k].x, spots[k].baseline, labels[k],
-               {{"class", "point-label"},
-                {"data-method", labels[k]},
-                {"data-box", box_text(spots[k].box)}});
+               {{"class", "point-label"}, {"data-method", labels[k]}, {"data-box", box_text(spots[k].box)}});
   };
   // The dashed line is kept clear too, so that no label is struck through.
   draw_panel(near, y, "main", {nominal_box, svg::Box{x.from, y(level) - 0.5, x.to, y(level) + 0.5}});
@@ -921,7 +939,8 @@ std::string Report::tradeoff_figure(const Combo& c, const std::vector<RankingRow
       exact_
           ? "One point per method: the mean over n of the grid mean width against the worst case, the "
             "smallest exact infimum of coverage over the continuous p range at any n of the cube. Filled "
-            "points meet the nominal level everywhere (within 1e-10, the rule audit uses); hollow points fall "
+            "points meet the nominal level everywhere (within 1e-10, the rule audit uses); hollow points "
+            "fall "
             "below the dashed line somewhere; further left is narrower."
           : "One point per method: the mean over n of the simulated grid mean width against the smallest "
             "simulated grid coverage at any n (a Monte Carlo minimum, biased low by the simulation noise). "
@@ -989,10 +1008,10 @@ std::string Report::summary_table(const Combo& c, const std::vector<std::size_t>
 std::string Report::ranking_table(const Combo& c, const std::vector<RankingRow>& rows) const {
   const double level = cube_.levels[c.level];
   std::string out = "<table class=\"ranking\">\n";
-  out += html_head_row({"#", "method", exact_ ? "worst (exact infimum) %" : "worst (simulated) %",
-                        "meets nominal", "at n",
-                        exact_ ? "mean coverage (continuous p) %" : "mean coverage %",
-                        "RMS deviation (points)", "p below nominal %", "mean width"});
+  out +=
+      html_head_row({"#", "method", exact_ ? "worst (exact infimum) %" : "worst (simulated) %",
+                     "meets nominal", "at n", exact_ ? "mean coverage (continuous p) %" : "mean coverage %",
+                     "RMS deviation (points)", "p below nominal %", "mean width"});
   for (const auto& r : rows)
     out += html_table_row({{std::to_string(r.rank), nan},
                            {cube_.methods[r.method], nan},

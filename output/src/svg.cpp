@@ -240,11 +240,11 @@ namespace {
 // (ImageFont.truetype("DejaVuSans.ttf", 1000).getlength) on Debian 12's
 // fonts-dejavu-core 2.37.
 constexpr std::array<std::uint16_t, 95> dejavu_advance = {
-    318, 401, 460, 838, 637, 951, 780, 275, 391, 391, 500, 838, 318, 361, 318, 337, 637, 637, 637,
+    318, 401, 460, 838, 637, 951, 780, 275, 391, 391, 500, 838, 318, 361,  318, 337, 637, 637, 637,
     637, 637, 637, 637, 637, 637, 637, 337, 337, 838, 838, 838, 531, 1000, 685, 687, 699, 771, 632,
-    576, 775, 752, 295, 295, 656, 558, 863, 749, 788, 604, 788, 695, 635, 611, 732, 685, 989, 686,
-    611, 686, 391, 337, 391, 838, 500, 500, 613, 635, 550, 635, 616, 353, 635, 634, 278, 278, 580,
-    278, 975, 634, 612, 635, 635, 412, 521, 393, 634, 592, 818, 592, 592, 525, 637, 337, 637, 838};
+    576, 775, 752, 295, 295, 656, 558, 863, 749, 788, 604, 788, 695, 635,  611, 732, 685, 989, 686,
+    611, 686, 391, 337, 391, 838, 500, 500, 613, 635, 550, 635, 616, 353,  635, 634, 278, 278, 580,
+    278, 975, 634, 612, 635, 635, 412, 521, 393, 634, 592, 818, 592, 592,  525, 637, 337, 637, 838};
 
 /// The part of segment (a, b) inside box `box` is not empty (Liang-Barsky clipping).
 bool segment_hits(double ax, double ay, double bx, double by, const Box& box) {
@@ -295,7 +295,7 @@ double text_width(std::string_view text, double font_px) {
       len = 4;
     i += std::min(len, text.size() - i);
   }
-  return em * font_px + 0.5;
+  return em * font_px * 1.03 + 0.5;
 }
 
 bool Box::overlaps(const Box& o) const { return x0 < o.x1 && o.x0 < x1 && y0 < o.y1 && o.y0 < y1; }
@@ -305,7 +305,9 @@ bool Box::inside(const Box& o) const { return x0 >= o.x0 && x1 <= o.x1 && y0 >= 
 Box text_box(double x, double baseline, std::string_view text, double font_px, std::string_view anchor) {
   const double w = text_width(text, font_px);
   const double x0 = anchor == "middle" ? x - w / 2 : anchor == "end" ? x - w : x;
-  return {x0, baseline - text_ascent * font_px, x0 + w, baseline + text_descent * font_px};
+  const double bearing = text_bearing * font_px;
+  return {x0 - bearing, baseline - text_ascent * font_px, x0 + w + bearing,
+          baseline + text_descent * font_px};
 }
 
 std::vector<LabelPlacement> place_labels(const std::vector<std::pair<double, double>>& points, double radius,
@@ -326,14 +328,16 @@ std::vector<LabelPlacement> place_labels(const std::vector<std::pair<double, dou
       if (j != i && std::hypot(points[i].first - points[j].first, points[i].second - points[j].second) < 60)
         ++crowd[i];
   }
-  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return crowd[a] > crowd[b]; });
+  std::stable_sort(order.begin(), order.end(),
+                   [&](std::size_t a, std::size_t b) { return crowd[a] > crowd[b]; });
 
   const double ascent = text_ascent * font_px, descent = text_descent * font_px, gap = radius + 3;
   std::vector<LabelPlacement> out(count);
   std::vector<Box> placed;
   for (std::size_t i : order) {
     const auto [cx, cy] = points[i];
-    const double w = text_width(labels[i], font_px), h = ascent + descent;
+    const Box own = text_box(0, 0, labels[i], font_px);
+    const double w = own.x1 - own.x0, h = ascent + descent, inset = -own.x0;
     const auto box_at = [&](double x0, double y0) { return Box{x0, y0, x0 + w, y0 + h}; };
     const auto free = [&](const Box& b) {
       if (!b.inside(bounds)) return false;
@@ -345,14 +349,14 @@ std::vector<LabelPlacement> place_labels(const std::vector<std::pair<double, dou
              std::none_of(obstacles.begin(), obstacles.end(), hits);
     };
     const auto finish = [&](const Box& b, bool displaced, bool fits) {
-      out[i] = {b.x0, b.y0 + ascent, b, displaced, fits};
+      out[i] = {b.x0 + inset, b.y0 + ascent, b, displaced, fits};
       placed.push_back(b);
     };
     const double d = gap * 0.7071;
-    const Box beside[] = {
-        box_at(cx + gap, cy - h / 2),      box_at(cx - gap - w, cy - h / 2), box_at(cx + d, cy - d - h),
-        box_at(cx - d - w, cy - d - h),    box_at(cx + d, cy + d),           box_at(cx - d - w, cy + d),
-        box_at(cx - w / 2, cy - gap - h), box_at(cx - w / 2, cy + gap)};
+    const Box beside[] = {box_at(cx + gap, cy - h / 2),     box_at(cx - gap - w, cy - h / 2),
+                          box_at(cx + d, cy - d - h),       box_at(cx - d - w, cy - d - h),
+                          box_at(cx + d, cy + d),           box_at(cx - d - w, cy + d),
+                          box_at(cx - w / 2, cy - gap - h), box_at(cx - w / 2, cy + gap)};
     const Box* chosen = nullptr;
     for (const Box& b : beside)
       if (free(b)) {

@@ -420,9 +420,10 @@ covergrid::output::svg::Box text_box_of(const Element& el) {
 
 }  // namespace
 
-TEST_CASE("the trade-off plot: labels clear of each other, the points and the edges; far-off methods on a "
-          "broken axis",
-          "[output][report][labels]") {
+TEST_CASE(
+    "the trade-off plot: labels clear of each other, the points and the edges; far-off methods on a "
+    "broken axis",
+    "[output][report][labels]") {
   ScratchDir dir("report-crowded");
   const auto s = scenario_from(crowded_text, dir.path().string());
   run_to_cube(s);
@@ -444,7 +445,8 @@ TEST_CASE("the trade-off plot: labels clear of each other, the points and the ed
     const Element* axis_break = nullptr;
     for (const auto& el : tags) {
       if (el.at("") == "circle" && el.at("class") == "point") {
-        const double cx = std::strtod(el.at("cx").c_str(), nullptr), cy = std::strtod(el.at("cy").c_str(), nullptr),
+        const double cx = std::strtod(el.at("cx").c_str(), nullptr),
+                     cy = std::strtod(el.at("cy").c_str(), nullptr),
                      r = std::strtod(el.at("r").c_str(), nullptr);
         markers.push_back({cx - r, cy - r, cx + r, cy + r});
         points.push_back(el);
@@ -516,8 +518,8 @@ TEST_CASE("coverage panels are large enough to read and use the page width", "[o
   const auto s = scenario_from(exact_text, dir.path().string());
   run_to_cube(s);
   const o::CubeReader cube(s.cube_path);
-  for (const std::vector<std::int64_t>& n : {std::vector<std::int64_t>{}, std::vector<std::int64_t>{2, 7, 12},
-                                             std::vector<std::int64_t>{5}}) {
+  for (const std::vector<std::int64_t>& n :
+       {std::vector<std::int64_t>{}, std::vector<std::int64_t>{2, 7, 12}, std::vector<std::int64_t>{5}}) {
     o::ReportOptions opt;
     opt.n = n;
     o::write_report(cube, opt, dir.file("r.html"));

@@ -72,10 +72,12 @@ std::pair<double, double> nice_range(double lo, double hi, int count);
 /// the page's first font, DejaVu Sans: each printable ASCII character's
 /// advance (DejaVu Sans 2.37 as measured by FreeType through PIL 9.4,
 /// Debian 12, rounded up to 1/1000 em), 1 em for any other character
-/// (wider than almost every glyph), plus half a pixel. The fallback fonts
-/// of the style sheet are narrower, so the estimate errs wide;
-/// tests/output/check_report.py measures every label of a page with
-/// FreeType and checks that it does.
+/// (wider than almost every glyph), times 1.03 (Chromium 156 lays 11-pixel
+/// DejaVu Sans out up to 2.5 % wider than the unhinted advances), plus half
+/// a pixel. The fallback fonts of the style sheet are narrower, so the
+/// estimate errs wide; tests/output/check_report.py measures every label of
+/// a page with FreeType, and scripts/check-report-render with Chromium's
+/// layout, and both check that it does.
 double text_width(std::string_view text, double font_px);
 
 /// An axis-aligned box in page pixels, x0 <= x1 and y0 <= y1.
@@ -90,9 +92,14 @@ struct Box {
 /// Ascent and descent of a text line as fractions of the font size (DejaVu
 /// Sans glyphs reach 0.76 em above and 0.24 em below the baseline; rounded up).
 inline constexpr double text_ascent = 0.82, text_descent = 0.27;
+/// Glyphs may reach this far (a fraction of the font size) beyond their
+/// advances on either side (the hook of a leading "j"; Chromium's getBBox()
+/// found 1.5 pixels at 11 px).
+inline constexpr double text_bearing = 0.15;
 
 /// The box of one line of text anchored at (x, baseline): `anchor` is
-/// "start", "middle" or "end" as SVG's text-anchor.
+/// "start", "middle" or "end" as SVG's text-anchor; the advance width,
+/// widened by text_bearing on each side.
 Box text_box(double x, double baseline, std::string_view text, double font_px,
              std::string_view anchor = "start");
 
@@ -115,10 +122,9 @@ struct LabelPlacement {
 /// label or marker). A free place lies inside `bounds` and overlaps no
 /// placed label, no marker (a square of side 2 radius + 2 around each
 /// point) and no box of `obstacles`. A pure function of its arguments.
-std::vector<LabelPlacement> place_labels(const std::vector<std::pair<double, double>>& points,
-                                         double radius, const std::vector<std::string>& labels,
-                                         double font_px, const Box& bounds,
-                                         const std::vector<Box>& obstacles = {});
+std::vector<LabelPlacement> place_labels(const std::vector<std::pair<double, double>>& points, double radius,
+                                         const std::vector<std::string>& labels, double font_px,
+                                         const Box& bounds, const std::vector<Box>& obstacles = {});
 
 /// One <svg> element under construction.
 class Canvas {
