@@ -848,7 +848,9 @@ std::string Report::tradeoff_figure(const Combo& c, const std::vector<RankingRow
   const double x_pad = std::max(x_hi - x_lo, 1e-3) * 0.04;
   const auto [xa, xb] = svg::nice_range(std::max(0.0, x_lo - x_pad), x_hi + x_pad, 8);
   const auto [ya, yb] = range_of(near, true, alpha / 5);
-  const double w = page_width, top = 16, main_h = 360, gap = 40, strip_h = 110, foot = 48;
+  // The strip grows with the points it holds (room for their labels), up to 230 pixels.
+  const double w = page_width, top = 16, main_h = 360, gap = 40, foot = 48;
+  const double strip_h = std::min(230.0, 110 + 24 * static_cast<double>(far.size() > 2 ? far.size() - 2 : 0));
   const double strip_top = top + main_h + gap;
   const double h = (broken ? strip_top + strip_h : top + main_h) + foot;
   const Axis x{xa, xb, 84, w - 24, svg::Scale::linear};
