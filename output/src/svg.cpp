@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <cstdint>
 
@@ -232,6 +233,179 @@ std::pair<double, double> nice_range(double lo, double hi, int count) {
   return {std::floor(lo / step + 1e-9) * step, std::ceil(hi / step - 1e-9) * step};
 }
 
+namespace {
+
+// Advance widths of the printable ASCII characters (32..126) in DejaVu Sans,
+// in 1/1000 em, rounded up: measured with FreeType through PIL 9.4
+// (ImageFont.truetype("DejaVuSans.ttf", 1000).getlength) on Debian 12's
+// fonts-dejavu-core 2.37.
+constexpr std::array<std::uint16_t, 95> dejavu_advance = {
+    318, 401, 460, 838, 637, 951, 780, 275, 391, 391, 500, 838, 318, 361,  318, 337, 637, 637, 637,
+    637, 637, 637, 637, 637, 637, 637, 337, 337, 838, 838, 838, 531, 1000, 685, 687, 699, 771, 632,
+    576, 775, 752, 295, 295, 656, 558, 863, 749, 788, 604, 788, 695, 635,  611, 732, 685, 989, 686,
+    611, 686, 391, 337, 391, 838, 500, 500, 613, 635, 550, 635, 616, 353,  635, 634, 278, 278, 580,
+    278, 975, 634, 612, 635, 635, 412, 521, 393, 634, 592, 818, 592, 592,  525, 637, 337, 637, 838};
+
+/// The part of segment (a, b) inside box `box` is not empty (Liang-Barsky clipping).
+bool segment_hits(double ax, double ay, double bx, double by, const Box& box) {
+  double t0 = 0, t1 = 1;
+  const double dx = bx - ax, dy = by - ay;
+  const double p[4] = {-dx, dx, -dy, dy};
+  const double q[4] = {ax - box.x0, box.x1 - ax, ay - box.y0, box.y1 - ay};
+  for (int i = 0; i < 4; ++i) {
+    if (p[i] == 0) {
+      if (q[i] <= 0) return false;
+      continue;
+    }
+    const double t = q[i] / p[i];
+    if (p[i] < 0)
+      t0 = std::max(t0, t);
+    else
+      t1 = std::min(t1, t);
+    if (t0 >= t1) return false;
+  }
+  return true;
+}
+
+/// The point of `box` nearest to (x, y).
+std::pair<double, double> nearest_on(const Box& box, double x, double y) {
+  return {std::clamp(x, box.x0, box.x1), std::clamp(y, box.y0, box.y1)};
+}
+
+}  // namespace
+
+double text_width(std::string_view text, double font_px) {
+  double em = 0;
+  for (std::size_t i = 0; i < text.size();) {
+    const auto c = static_cast<unsigned char>(text[i]);
+    if (c >= 32 && c < 127) {
+      em += dejavu_advance[c - 32] / 1000.0;
+      ++i;
+      continue;
+    }
+    // One character of any other kind (a UTF-8 sequence, or a stray byte that
+    // escape() turns into U+FFFD): 1 em.
+    em += 1;
+    std::size_t len = 1;
+    if (c >= 0xC0 && c < 0xE0)
+      len = 2;
+    else if (c >= 0xE0 && c < 0xF0)
+      len = 3;
+    else if (c >= 0xF0)
+      len = 4;
+    i += std::min(len, text.size() - i);
+  }
+  return em * font_px * 1.03 + 0.5;
+}
+
+bool Box::overlaps(const Box& o) const { return x0 < o.x1 && o.x0 < x1 && y0 < o.y1 && o.y0 < y1; }
+
+bool Box::inside(const Box& o) const { return x0 >= o.x0 && x1 <= o.x1 && y0 >= o.y0 && y1 <= o.y1; }
+
+Box text_box(double x, double baseline, std::string_view text, double font_px, std::string_view anchor) {
+  const double w = text_width(text, font_px);
+  const double x0 = anchor == "middle" ? x - w / 2 : anchor == "end" ? x - w : x;
+  const double bearing = text_bearing * font_px;
+  return {x0 - bearing, baseline - text_ascent * font_px, x0 + w + bearing,
+          baseline + text_descent * font_px};
+}
+
+std::vector<LabelPlacement> place_labels(const std::vector<std::pair<double, double>>& points, double radius,
+                                         const std::vector<std::string>& labels, double font_px,
+                                         const Box& bounds, const std::vector<Box>& obstacles) {
+  const std::size_t count = std::min(points.size(), labels.size());
+  std::vector<Box> markers;
+  for (std::size_t i = 0; i < count; ++i) {
+    const auto [x, y] = points[i];
+    markers.push_back({x - radius - 1, y - radius - 1, x + radius + 1, y + radius + 1});
+  }
+  // The most crowded points first (most other markers within 60 pixels), ties in input order.
+  std::vector<std::size_t> order(count);
+  std::vector<int> crowd(count, 0);
+  for (std::size_t i = 0; i < count; ++i) {
+    order[i] = i;
+    for (std::size_t j = 0; j < count; ++j)
+      if (j != i && std::hypot(points[i].first - points[j].first, points[i].second - points[j].second) < 60)
+        ++crowd[i];
+  }
+  std::stable_sort(order.begin(), order.end(),
+                   [&](std::size_t a, std::size_t b) { return crowd[a] > crowd[b]; });
+
+  const double ascent = text_ascent * font_px, descent = text_descent * font_px, gap = radius + 3;
+  std::vector<LabelPlacement> out(count);
+  std::vector<Box> placed;
+  for (std::size_t i : order) {
+    const auto [cx, cy] = points[i];
+    const Box own = text_box(0, 0, labels[i], font_px);
+    const double w = own.x1 - own.x0, h = ascent + descent, inset = -own.x0;
+    const auto box_at = [&](double x0, double y0) { return Box{x0, y0, x0 + w, y0 + h}; };
+    const auto free = [&](const Box& b) {
+      if (!b.inside(bounds)) return false;
+      // A pixel of clearance, so that coordinates rounded to a tenth stay apart.
+      const Box padded{b.x0 - 1, b.y0 - 1, b.x1 + 1, b.y1 + 1};
+      const auto hits = [&](const Box& o) { return padded.overlaps(o); };
+      return std::none_of(placed.begin(), placed.end(), hits) &&
+             std::none_of(markers.begin(), markers.end(), hits) &&
+             std::none_of(obstacles.begin(), obstacles.end(), hits);
+    };
+    const auto finish = [&](const Box& b, bool displaced, bool fits) {
+      out[i] = {b.x0 + inset, b.y0 + ascent, b, displaced, fits};
+      placed.push_back(b);
+    };
+    const double d = gap * 0.7071;
+    const Box beside[] = {box_at(cx + gap, cy - h / 2),     box_at(cx - gap - w, cy - h / 2),
+                          box_at(cx + d, cy - d - h),       box_at(cx - d - w, cy - d - h),
+                          box_at(cx + d, cy + d),           box_at(cx - d - w, cy + d),
+                          box_at(cx - w / 2, cy - gap - h), box_at(cx - w / 2, cy + gap)};
+    const Box* chosen = nullptr;
+    for (const Box& b : beside)
+      if (free(b)) {
+        chosen = &b;
+        break;
+      }
+    if (chosen) {
+      finish(*chosen, false, true);
+      continue;
+    }
+    // Displaced: the free grid place nearest to the point, a clear leader line preferred.
+    struct Candidate {
+      double distance;
+      Box box;
+    };
+    std::vector<Candidate> grid;
+    for (double y0 = bounds.y0; y0 + h <= bounds.y1; y0 += 3)
+      for (double x0 = bounds.x0; x0 + w <= bounds.x1; x0 += 3) {
+        const Box b = box_at(x0, y0);
+        const auto [nx, ny] = nearest_on(b, cx, cy);
+        grid.push_back({std::hypot(nx - cx, ny - cy), b});
+      }
+    std::stable_sort(grid.begin(), grid.end(),
+                     [](const Candidate& a, const Candidate& b) { return a.distance < b.distance; });
+    const Box* any_free = nullptr;
+    for (const auto& c : grid) {
+      if (!free(c.box)) continue;
+      if (!any_free) any_free = &c.box;
+      const auto [nx, ny] = nearest_on(c.box, cx, cy);
+      bool clear = true;
+      for (const Box& b : placed) clear = clear && !segment_hits(cx, cy, nx, ny, b);
+      for (std::size_t j = 0; j < count && clear; ++j)
+        if (j != i) clear = !segment_hits(cx, cy, nx, ny, markers[j]);
+      if (clear) {
+        chosen = &c.box;
+        break;
+      }
+    }
+    if (!chosen) chosen = any_free;
+    if (chosen)
+      finish(*chosen, true, true);
+    else  // no free place: beside the point, kept within the bounds
+      finish(box_at(std::clamp(beside[0].x0, bounds.x0, std::max(bounds.x0, bounds.x1 - w)),
+                    std::clamp(beside[0].y0, bounds.y0, std::max(bounds.y0, bounds.y1 - h))),
+             false, false);
+  }
+  return out;
+}
+
 Canvas::Canvas(double width, double height, std::string_view label, const Attrs& attrs) {
   out_ = fmt::format(
       "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{0}\" height=\"{1}\" viewBox=\"0 0 {0} {1}\" "
@@ -312,7 +486,7 @@ void Canvas::polygon(const std::vector<double>& x, const std::vector<double>& y,
 }
 
 void Canvas::axes(const Axis& x, const Axis& y, std::string_view x_title, std::string_view y_title,
-                  bool grid_lines) {
+                  bool grid_lines, bool x_tick_labels) {
   const auto [left, right] = x.extent();
   const auto [top, bottom] = y.extent();
   // Ticks at least 48 (x) and 22 (y) pixels apart, and at least three on a short axis.
@@ -322,19 +496,19 @@ void Canvas::axes(const Axis& x, const Axis& y, std::string_view x_title, std::s
     const double at = x(t.value);
     if (grid_lines) line(at, top, at, bottom, {{"class", "grid"}});
     line(at, bottom, at, bottom + 4, {{"class", "tick"}});
-    text(at, bottom + 14, t.label, {{"class", "tick-label"}, {"text-anchor", "middle"}});
+    if (x_tick_labels) text(at, bottom + 15, t.label, {{"class", "tick-label"}, {"text-anchor", "middle"}});
   }
   for (const auto& t : y.ticks(y_gap)) {
     const double at = y(t.value);
     if (grid_lines) line(left, at, right, at, {{"class", "grid"}});
     line(left - 4, at, left, at, {{"class", "tick"}});
-    text(left - 6, at + 3.5, t.label, {{"class", "tick-label"}, {"text-anchor", "end"}});
+    text(left - 6, at + 4, t.label, {{"class", "tick-label"}, {"text-anchor", "end"}});
   }
   rect(left, top, right - left, bottom - top, {{"class", "frame"}});
   if (!x_title.empty())
-    text((left + right) / 2, bottom + 28, x_title, {{"class", "axis-title"}, {"text-anchor", "middle"}});
+    text((left + right) / 2, bottom + 30, x_title, {{"class", "axis-title"}, {"text-anchor", "middle"}});
   if (!y_title.empty()) {
-    const double cx = left - 34, cy = (top + bottom) / 2;
+    const double cx = left - 40, cy = (top + bottom) / 2;
     text(cx, cy, y_title,
          {{"class", "axis-title"},
           {"text-anchor", "middle"},

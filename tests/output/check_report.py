@@ -5,8 +5,10 @@ each page as XML (xml.etree.ElementTree, Python's standard library) and holds
 it to the cube read with h5py (Debian 12's python3-h5py 3.7.0, numpy 1.24.2;
 versions printed): every drawn value equals the cube's value bit for bit,
 heat-map bins are the minima of their cells and sit in their colour class,
-trade-off points and table figures are the cube's summaries, every method and
-axis title appears, the cube's SHA-256 matches hashlib, and the page refers
+trade-off points and table figures are the cube's summaries, the trade-off
+labels collide with nothing and stay inside their SVG (their widths measured
+with FreeType, PIL), far-off methods sit under a broken axis, coverage panels
+are at least 300 x 160 pixels, every method and axis title appears, the cube's SHA-256 matches hashlib, and the page refers
 to nothing outside itself (no script, no src, no href but #fragments, no
 @import or url() in CSS).
 Usage: check_report.py COVERGRID_EXE DIR"""
@@ -34,6 +36,8 @@ levels = [0.9, 0.95]
 sides = ["two-sided", "lower-bound"]
 [[method]]
 id = "wilson"
+[[method]]
+id = "wald"
 [[method]]
 id = "clopper-pearson"
 [[method]]
@@ -77,6 +81,74 @@ def floats(s):
 def same(a, b):
     """Bit-equal doubles (NaN equals NaN)."""
     return np.float64(a).tobytes() == np.float64(b).tobytes()
+
+
+def reaches(value, level, edge, slack):
+    """A heat-map bin reaches a class edge: at or below nominal by the shared
+    coverage rule (value >= nominal + edge - slack), above it by the plain deviation."""
+    if np.isinf(edge):
+        return edge < 0
+    return value >= level + edge - slack if edge <= 0 else value - level >= edge
+
+
+def box(el):
+    return [float(v) for v in el.get("data-box").split()]
+
+
+def overlap(a, b):
+    return a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]
+
+
+def check_tradeoff(svg_el, methods, levels, level_of_section):
+    """Trade-off labels: each label's box (data-box, the writer's estimate) holds the text as
+    FreeType measures it in DejaVu Sans (PIL, python3-pil 9.4.0 on Debian 12), lies inside the
+    viewBox, and overlaps no other label, no point marker and not the nominal line's label;
+    far-off points sit in the strip under a broken axis; hollow and filled points follow the
+    shared coverage rule (slack 1e-10)."""
+    view = [float(v) for v in svg_el.get("viewBox").split()]
+    view = [view[0], view[1], view[0] + view[2], view[1] + view[3]]
+    labels = [t for t in svg_el.iter(SV + "text") if t.get("class") == "point-label"]
+    nominal = [t for t in svg_el.iter(SV + "text") if t.get("class") == "nominal-label"]
+    points = [c for c in svg_el.iter(SV + "circle") if c.get("class") == "point"]
+    assert len(labels) == len(points) and len(nominal) == 1
+    markers = []
+    for c in points:
+        cx, cy, r = float(c.get("cx")), float(c.get("cy")), float(c.get("r"))
+        markers.append([cx - r, cy - r, cx + r, cy + r])
+    boxes = [box(t) for t in labels]
+    nb = box(nominal[0])
+    for t, b in zip(labels + nominal, boxes + [nb]):
+        assert view[0] <= b[0] and b[2] <= view[2] and view[1] <= b[1] and b[3] <= view[3], ("outside", b)
+        if FONT is not None:
+            measured = FONT.getlength("".join(t.itertext()))
+            assert measured <= b[2] - b[0] + 0.2, (t.text, measured, b)
+            x = float(t.get("x"))  # the anchor lies within the box, a bearing allowance from its edge
+            edge = b[0] if t.get("text-anchor") != "end" else b[2]
+            assert abs(edge - x) <= 0.15 * 11 + 0.1, (t.text, x, b)
+    for i, b in enumerate(boxes):
+        assert not overlap(b, nb), labels[i].text
+        for j, other in enumerate(boxes):
+            assert i == j or not overlap(b, other), (labels[i].text, labels[j].text)
+        for m in markers:
+            assert not overlap(b, m), (labels[i].text, m)
+    level = level_of_section
+    breaks = [g for g in svg_el.iter(SV + "g") if g.get("class") == "axis-break"]
+    threshold = level - 4 * (1 - level)
+    far = [c for c in points if not float(c.get("data-y")) >= threshold - 1e-10]
+    assert len(breaks) == (1 if far and len(far) < len(points) else 0)
+    for c in points:
+        y = float(c.get("data-y"))
+        assert c.get("data-meets-nominal") == ("yes" if y >= level - 1e-10 else "no")
+        if breaks:
+            assert c.get("data-panel") == ("strip" if c in far else "main")
+    return len(labels)
+
+
+try:
+    from PIL import ImageFont
+    FONT = ImageFont.truetype("/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf", 11)
+except (ImportError, OSError):
+    FONT = None
 
 
 def run_case(name, scenario, report_args):
@@ -179,8 +251,12 @@ def check_case(cube_path, html_path, expect_source, max_bins):
 
         # Heat maps: each bin the minimum over its cells; each run of bins in its colour class.
         classes = {}
+        slack = None
         for el in root.iter():
             cls = el.get("class") or ""
+            if cls == "heat-legend":
+                slack = float(el.get("data-slack"))
+                assert slack == 1e-10, slack
             if cls.startswith("heat-key") and el.get("data-lo") is not None:
                 classes[cls.split()[1]] = (float(el.get("data-lo")), float(el.get("data-hi")))
             if cls != "heat-map":
@@ -211,7 +287,8 @@ def check_case(cube_path, html_path, expect_source, max_bins):
                     a, e = (int(v) for v in rect.get("data-bins").split())
                     lo, hi = classes[rect.get("class")]
                     for b in range(a, e + 1):
-                        assert lo <= values[b] - level < hi, (values[b], level, rect.get("class"))
+                        assert reaches(values[b], level, lo, slack), (values[b], level, rect.get("class"))
+                        assert not reaches(values[b], level, hi, slack), (values[b], level, rect.get("class"))
                 counts["heat rows"] += 1
             assert covered_n == list(range(len(ns))), "n bins do not tile the axis"
 
@@ -232,6 +309,20 @@ def check_case(cube_path, html_path, expect_source, max_bins):
             assert same(float(el.get("data-y")), np.min(worst))
             assert same(float(el.get("data-x")), total / len(widths))
             counts["points"] += 1
+        counts["labels"] = 0
+        for sec in root.iter(XH + "section"):
+            if sec.get("class") != "combo":
+                continue
+            l = int(sec.get("id")[1:].split("-")[2])
+            for el in sec.iter(SV + "svg"):
+                if el.get("class") == "tradeoff":
+                    counts["labels"] += check_tradeoff(el, methods, levels, float(levels[l]))
+        # Coverage panels: plot areas of at least 300 x 160 pixels, no wider than the page.
+        for el in root.iter(SV + "svg"):
+            if el.get("class") == "plot-area" and el.get("data-kind") == "coverage":
+                assert float(el.get("width")) >= 300 and float(el.get("height")) >= 160, el.attrib
+            if el.get("class") == "coverage-panels":
+                assert float(el.get("width")) <= 1120
 
         # Summary table: mean coverage and min coverage at the drawn n are the cube's summaries.
         prefix = "" if source == "exact" else "mc_"
@@ -258,10 +349,11 @@ if __name__ == "__main__":
     cube, html = run_case("exact", EXACT, ["--max-bins", "10"])
     c1 = check_case(cube, html, "exact", 10)
     page = open(html, encoding="utf-8").read()
+    assert "The vertical axis is broken" in page, "no broken axis for wald"
     assert "Left out: blaker does not define the lower-bound side" in page
     assert "p axis is in log-odds" in page
     cube, html = run_case("simulated", SIMULATED, [])
     c2 = check_case(cube, html, "mc", 80)
     assert "Simulated: every figure" in open(html, encoding="utf-8").read()
-    print(f"h5py {h5py.__version__}, numpy {np.__version__}: exact report {c1}, simulated report {c2}: "
+    print(f"h5py {h5py.__version__}, numpy {np.__version__}, FreeType widths {FONT is not None}: exact report {c1}, simulated report {c2}: "
           "values equal the cube's, page self-contained")

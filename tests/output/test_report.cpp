@@ -7,11 +7,13 @@
 #include "support.hpp"
 
 #include "covergrid/cli/cli.hpp"
+#include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/error.hpp"
 #include "covergrid/engine/sha256.hpp"
 #include "covergrid/output/cube.hpp"
 #include "covergrid/output/hdf5.hpp"
 #include "covergrid/output/report.hpp"
+#include "covergrid/output/svg.hpp"
 #include "covergrid/output/tables.hpp"
 
 #include <catch2/catch.hpp>
@@ -30,6 +32,7 @@
 namespace e = covergrid::engine;
 namespace o = covergrid::output;
 namespace fs = std::filesystem;
+namespace svg = covergrid::output::svg;
 using covergrid::test::scenario_from;
 using covergrid::test::ScratchDir;
 
@@ -268,13 +271,18 @@ std::size_t check_heat_maps(const o::CubeReader& cube, const std::string& html, 
       CHECK(b == row_min.size());
       ++rows_checked;
     } else {
-      // A run of bins of one colour class: every bin's deviation lies in the class.
+      // A run of bins of one colour class: every bin reaches the class's lower
+      // edge and not its upper one, edges at or below nominal judged by the
+      // shared rule (nominal + edge - 1e-10), edges above by the plain deviation.
       const auto bins = numbers(el.at("data-bins"));
       const auto [lo, hi] = classes.at(el.at("class"));
+      const auto reaches = [&](double v, double edge) {
+        if (std::isinf(edge)) return edge < 0;
+        return edge <= 0 ? v >= level_value + edge - 1e-10 : v - level_value >= edge;
+      };
       for (auto b = static_cast<std::size_t>(bins.at(0)); b <= static_cast<std::size_t>(bins.at(1)); ++b) {
-        const double dev = row_min.at(b) - level_value;
-        CHECK(dev >= lo);
-        CHECK(dev < hi);
+        CHECK(reaches(row_min.at(b), lo));
+        CHECK_FALSE(reaches(row_min.at(b), hi));
       }
     }
   }
@@ -338,6 +346,220 @@ TEST_CASE("the report of an exact cube carries the cube's values", "[output][rep
   // The page depends on the cube alone: a second report is the same bytes.
   o::write_report(cube, opt, dir.file("again.html"));
   CHECK(slurp(dir.file("again.html")) == html);
+}
+
+namespace {
+
+// Small samples down to p = 0.005, where Wald's worst case collapses to a few
+// percent (far below nominal - 4 alpha) while the others stay near nominal,
+// and several methods share nearly the same point.
+const char* crowded_text = R"(
+title = "crowded trade-off"
+seed = 7
+[grid]
+n = { from = 8, to = 14 }
+p = { from = 0.005, to = 0.5, count = 60 }
+levels = [0.9, 0.95]
+[[method]]
+id = "wald"
+[[method]]
+id = "wilson"
+[[method]]
+id = "agresti-coull"
+[[method]]
+id = "clopper-pearson"
+[[method]]
+id = "mid-p"
+[[method]]
+id = "jeffreys"
+[[method]]
+id = "blaker"
+[[method]]
+id = "jeffreys"
+label = "jeffreys-again"
+[[method]]
+id = "wilson"
+label = "wilson-twin"
+[output]
+cube = "crowded.h5"
+tables = ""
+)";
+
+/// The start tags of each <svg class="cls"> of the page (the element first), one list per svg.
+std::vector<std::vector<Element>> svgs_of(const std::string& html, const std::string& cls) {
+  std::vector<std::vector<Element>> out;
+  const std::string open = "<svg xmlns=\"http://www.w3.org/2000/svg\"";
+  for (std::size_t at = html.find(open); at != std::string::npos; at = html.find(open, at + 1)) {
+    const std::size_t head_end = html.find('>', at);
+    if (html.substr(at, head_end - at).find("class=\"" + cls + "\"") == std::string::npos) continue;
+    // Count nested <svg> viewports to find the matching end.
+    std::size_t depth = 0, i = at;
+    for (;;) {
+      const std::size_t o = html.find("<svg", i + 1), c = html.find("</svg>", i + 1);
+      if (o < c) {
+        ++depth;
+        i = o;
+      } else if (depth > 0) {
+        --depth;
+        i = c;
+      } else {
+        out.push_back(start_tags(html.substr(at, c - at)));
+        break;
+      }
+    }
+  }
+  return out;
+}
+
+covergrid::output::svg::Box text_box_of(const Element& el) {
+  const auto anchor = el.count("text-anchor") ? el.at("text-anchor") : std::string("start");
+  return covergrid::output::svg::text_box(std::strtod(el.at("x").c_str(), nullptr),
+                                          std::strtod(el.at("y").c_str(), nullptr), el.at("data-method"), 11,
+                                          anchor);
+}
+
+}  // namespace
+
+TEST_CASE(
+    "the trade-off plot: labels clear of each other, the points and the edges; far-off methods on a "
+    "broken axis",
+    "[output][report][labels]") {
+  ScratchDir dir("report-crowded");
+  const auto s = scenario_from(crowded_text, dir.path().string());
+  run_to_cube(s);
+  const o::CubeReader cube(s.cube_path);
+  o::write_report(cube, {}, dir.file("r.html"));
+  const std::string html = slurp(dir.file("r.html"));
+  const auto rank = o::ranking(cube);
+  const auto plots = svgs_of(html, "tradeoff");
+  REQUIRE(plots.size() == 2);  // one per level
+  std::size_t labels_checked = 0;
+  for (const auto& tags : plots) {
+    const double w = std::strtod(tags[0].at("width").c_str(), nullptr);
+    const double h = std::strtod(tags[0].at("height").c_str(), nullptr);
+    CHECK(tags[0].at("viewBox") == "0 0 " + tags[0].at("width") + " " + tags[0].at("height"));
+    const svg::Box view{0, 0, w, h};
+    std::vector<svg::Box> labels, markers;
+    std::vector<Element> points;
+    const Element* nominal = nullptr;
+    const Element* axis_break = nullptr;
+    for (const auto& el : tags) {
+      if (el.at("") == "circle" && el.at("class") == "point") {
+        const double cx = std::strtod(el.at("cx").c_str(), nullptr),
+                     cy = std::strtod(el.at("cy").c_str(), nullptr),
+                     r = std::strtod(el.at("r").c_str(), nullptr);
+        markers.push_back({cx - r, cy - r, cx + r, cy + r});
+        points.push_back(el);
+      }
+      if (el.at("") == "text" && el.at("class") == "point-label") labels.push_back(text_box_of(el));
+      if (el.at("") == "text" && el.at("class") == "nominal-label") nominal = &el;
+      if (el.at("") == "g" && el.at("class") == "axis-break") axis_break = &el;
+    }
+    REQUIRE(labels.size() == cube.methods.size());
+    REQUIRE(points.size() == cube.methods.size());
+    REQUIRE(nominal != nullptr);
+    const auto nominal_box = numbers(nominal->at("data-box"));
+    const svg::Box nb{nominal_box.at(0), nominal_box.at(1), nominal_box.at(2), nominal_box.at(3)};
+    CHECK(nb.inside(view));
+    for (std::size_t i = 0; i < labels.size(); ++i) {
+      INFO("label of " << points[i].at("data-method"));
+      CHECK(labels[i].inside(view));
+      CHECK_FALSE(labels[i].overlaps(nb));
+      for (std::size_t j = 0; j < labels.size(); ++j)
+        if (j != i) CHECK_FALSE(labels[i].overlaps(labels[j]));
+      for (const auto& m : markers) CHECK_FALSE(labels[i].overlaps(m));
+      ++labels_checked;
+    }
+    // Wald is far off: in the strip below the broken axis, its value still carried in full.
+    REQUIRE(axis_break != nullptr);
+    const double threshold = std::strtod(axis_break->at("data-threshold").c_str(), nullptr);
+    double lowest_main = 0;
+    for (const auto& p : points)
+      if (p.at("data-panel") == "main")
+        lowest_main = std::max(lowest_main, std::strtod(p.at("cy").c_str(), nullptr));
+    std::size_t in_strip = 0;
+    for (const auto& p : points) {
+      const double y = std::strtod(p.at("data-y").c_str(), nullptr);
+      CHECK((p.at("data-panel") == "strip") == !e::meets_coverage(y, threshold));
+      if (p.at("data-panel") == "strip") {
+        ++in_strip;
+        CHECK(p.at("data-method") == "wald");
+        CHECK(std::strtod(p.at("cy").c_str(), nullptr) > lowest_main + 30);
+        const std::size_t m = index_of(cube.methods, "wald");
+        bool found = false;
+        for (const auto& r : rank)
+          if (r.method == m && same_bits(r.worst_inf, y)) found = true;
+        CHECK(found);
+      }
+    }
+    CHECK(in_strip == 1);
+  }
+  CHECK(labels_checked == 2 * cube.methods.size());
+  CHECK(html.find("The vertical axis is broken") != std::string::npos);
+  CHECK(html.find("vertical axis broken") != std::string::npos);
+
+  // Filled points and the ranking's "meets nominal" follow the shared rule, and
+  // the cube has a method whose worst case is a rounding error below nominal
+  // (Blaker's infimum equals nominal in theory): it meets it.
+  const auto points = elements(html, "circle", "point");
+  REQUIRE(points.size() == rank.size());
+  std::size_t rounding_below = 0;
+  for (std::size_t i = 0; i < rank.size(); ++i) {
+    const double level = cube.levels[rank[i].level];
+    const bool meets = rank[i].worst_inf >= level - 1e-10;
+    CHECK(points[i].at("data-meets-nominal") == (meets ? "yes" : "no"));
+    if (rank[i].worst_inf < level && meets) ++rounding_below;
+  }
+  CHECK(rounding_below >= 1);
+}
+
+TEST_CASE("coverage panels are large enough to read and use the page width", "[output][report]") {
+  ScratchDir dir("report-panels");
+  const auto s = scenario_from(exact_text, dir.path().string());
+  run_to_cube(s);
+  const o::CubeReader cube(s.cube_path);
+  for (const std::vector<std::int64_t>& n :
+       {std::vector<std::int64_t>{}, std::vector<std::int64_t>{2, 7, 12}, std::vector<std::int64_t>{5}}) {
+    o::ReportOptions opt;
+    opt.n = n;
+    o::write_report(cube, opt, dir.file("r.html"));
+    const std::string html = slurp(dir.file("r.html"));
+    const auto areas = elements(html, "svg", "plot-area");
+    const std::size_t drawn = n.empty() ? 6 : n.size();
+    // Per level, 3 methods two-sided and 2 upper-bound, one plot area per (method, n).
+    CHECK(areas.size() == 2 * (3 + 2) * drawn);
+    for (const auto& a : areas) {
+      CHECK(a.at("data-kind") == "coverage");
+      CHECK(std::strtod(a.at("width").c_str(), nullptr) >= 300);
+      CHECK(std::strtod(a.at("height").c_str(), nullptr) >= 160);
+    }
+    // One SVG per method (print breaks pages between them), as wide as the page's content.
+    const auto panels = elements(html, "svg", "coverage-panels");
+    CHECK(panels.size() == 2 * (3 + 2));
+    for (const auto& p : panels) {
+      const double w = std::strtod(p.at("width").c_str(), nullptr);
+      CHECK(w <= 1120);
+      CHECK(w >= 1110);
+    }
+  }
+}
+
+TEST_CASE("heat-map classes judge coverage by the shared rule", "[output][report]") {
+  // alpha = 0.1 at 90 %: classes edges at -0.4, -0.2, -0.1, -0.05, -0.02, +0.02, +0.05.
+  CHECK(o::coverage_class(0.9, 0.9) == 5);
+  CHECK(o::coverage_class(0.89999999999999969, 0.9) == 5);
+  // Within the 1e-10 slack below the edge nominal - alpha/5: still within +-alpha/5.
+  CHECK(o::coverage_class(0.9 - 0.02 - 5e-11, 0.9) == 5);
+  CHECK(o::coverage_class(0.9 - 0.02 - 1e-9, 0.9) == 4);
+  CHECK(o::coverage_class(0.5 - 5e-11, 0.9) == 1);
+  CHECK(o::coverage_class(0.5 - 1e-9, 0.9) == 0);
+  CHECK(o::coverage_class(0.0, 0.9) == 0);
+  // Above nominal the plain deviation decides (nothing is "met" there).
+  CHECK(o::coverage_class(0.9 + 0.02 + 1e-12, 0.9) == 6);
+  CHECK(o::coverage_class(0.9 + 0.02 - 1e-12, 0.9) == 5);
+  CHECK(o::coverage_class(1.0, 0.9) == 7);
+  CHECK(o::coverage_class(std::nan(""), 0.9) == 8);
+  CHECK(o::coverage_class(0.95 - 0.01 - 5e-11, 0.95) == 5);
 }
 
 TEST_CASE("chosen n and default options", "[output][report]") {

@@ -1,5 +1,7 @@
 // The SVG writer: escaping (XML 1.0 character rules), exact number text that
-// reads back bit for bit, scales and ticks, and well-formed elements.
+// reads back bit for bit, scales and ticks, well-formed elements, text widths
+// and the label placement (no label over another, a marker or an obstacle,
+// none outside its bounds, on crowded and edge-hugging inputs).
 // Sources of the expected values: the characters XML allows are those of
 // XML 1.0 (Fifth Edition, W3C 2008), section 2.2 "Characters"; the UTF-8
 // byte forms, overlong and surrogate rules are RFC 3629, sections 3 and 4;
@@ -14,6 +16,9 @@
 #include <cstring>
 #include <limits>
 #include <random>
+#include <string>
+#include <utility>
+#include <vector>
 
 namespace svg = covergrid::output::svg;
 
@@ -113,4 +118,115 @@ TEST_CASE("the canvas writes closed, escaped elements", "[output][svg]") {
   CHECK(s.find("points=\"0,2 1.3,3\"") != std::string::npos);
   CHECK(s.find("<rect x=\"0\" y=\"0\" width=\"10\" height=\"5\"/>") != std::string::npos);
   CHECK(s.find("</g>\n</svg>") != std::string::npos);
+}
+
+TEST_CASE("text widths follow DejaVu Sans's advances", "[output][svg][labels]") {
+  // DejaVu Sans 2.37 measured with FreeType through PIL 9.4 (Debian 12):
+  // "clopper-pearson" at 11 px is 88.80 px, "m" 0.975 em, "i" 0.278 em.
+  CHECK(svg::text_width("clopper-pearson", 11) >= 88.8);
+  // The per-character sum leaves out kerning (PIL's whole-string 88.8 has it): 8.142 em.
+  CHECK(svg::text_width("clopper-pearson", 11) == Approx(8.142 * 11 * 1.03 + 0.5));
+  CHECK(svg::text_width("m", 10) > 2 * svg::text_width("i", 10) + 3);
+  CHECK(svg::text_width("", 11) == Approx(0.5));
+  // Any other character counts as 1 em, a UTF-8 sequence as one character.
+  CHECK(svg::text_width("\xC3\xA9", 10) == Approx(10 * 1.03 + 0.5));
+  CHECK(svg::text_width("\xE2\x88\x92x", 10) == Approx((10 + 5.92) * 1.03 + 0.5));
+  const svg::Box b = svg::text_box(100, 50, "ab", 10, "end");
+  CHECK(b.x1 == Approx(100 + 1.5));  // the bearing allowance, 0.15 em
+  CHECK(b.x0 == Approx(100 - svg::text_width("ab", 10) - 1.5));
+  CHECK(b.y0 == Approx(50 - 8.2));
+  CHECK(b.y1 == Approx(52.7));
+}
+
+namespace {
+
+/// Every label inside the bounds, clear of every other label, every marker
+/// (its disc's square) and every obstacle; returns how many were displaced.
+std::size_t check_placement(const std::vector<std::pair<double, double>>& points, double radius,
+                            const std::vector<std::string>& labels, const svg::Box& bounds,
+                            const std::vector<svg::Box>& obstacles = {}) {
+  const auto spots = svg::place_labels(points, radius, labels, 11, bounds, obstacles);
+  REQUIRE(spots.size() == points.size());
+  std::size_t displaced = 0;
+  for (std::size_t i = 0; i < spots.size(); ++i) {
+    INFO("label " << i << " " << labels[i]);
+    const auto& s = spots[i];
+    CHECK(s.fits);
+    // The box is the text's own box at the returned anchor.
+    const svg::Box own = svg::text_box(s.x, s.baseline, labels[i], 11);
+    CHECK(own.x0 == Approx(s.box.x0));
+    CHECK(own.x1 == Approx(s.box.x1));
+    CHECK(own.y0 == Approx(s.box.y0));
+    CHECK(own.y1 == Approx(s.box.y1));
+    CHECK(s.box.inside(bounds));
+    for (std::size_t j = 0; j < spots.size(); ++j) {
+      if (j != i) CHECK_FALSE(s.box.overlaps(spots[j].box));
+      const svg::Box marker{points[j].first - radius, points[j].second - radius, points[j].first + radius,
+                            points[j].second + radius};
+      CHECK_FALSE(s.box.overlaps(marker));
+    }
+    for (const auto& o : obstacles) CHECK_FALSE(s.box.overlaps(o));
+    if (s.displaced) ++displaced;
+  }
+  return displaced;
+}
+
+}  // namespace
+
+TEST_CASE("labels are placed without collisions on adversarial inputs", "[output][svg][labels]") {
+  const svg::Box bounds{80, 20, 1100, 380};
+  SECTION("a lone point keeps its label beside it, right of it") {
+    const auto spots = svg::place_labels({{500, 200}}, 4.5, {"wilson"}, 11, bounds);
+    REQUIRE(spots.size() == 1);
+    CHECK_FALSE(spots[0].displaced);
+    CHECK(spots[0].box.x0 == Approx(500 + 7.5));
+    CHECK(spots[0].x == Approx(500 + 7.5 + 0.15 * 11));
+  }
+  SECTION("sixteen methods at nearly the same point") {
+    std::vector<std::pair<double, double>> points;
+    std::vector<std::string> labels;
+    for (int i = 0; i < 16; ++i) {
+      points.emplace_back(600 + 0.3 * i, 200 - 0.2 * i);
+      labels.emplace_back("method-number-");  // appended, not operator+ (GCC 12's false -Wrestrict)
+      labels.back() += std::to_string(i);
+    }
+    const std::size_t displaced = check_placement(points, 4.5, labels, bounds);
+    CHECK(displaced >= 8);  // at most eight places beside one point
+  }
+  SECTION("points at the right and top edges and in the corners") {
+    const std::vector<std::pair<double, double>> points = {{1100, 200}, {1098, 204}, {1100, 20}, {80, 380},
+                                                           {80, 20},    {1100, 380}, {590, 20}};
+    const std::vector<std::string> labels = {
+        "clopper-pearson", "likelihood-ratio", "agresti-coull", "wald", "wilson-cc", "mid-p", "jeffreys"};
+    check_placement(points, 4.5, labels, bounds);
+  }
+  SECTION("a dense column of points beside an obstacle (the nominal label)") {
+    std::vector<std::pair<double, double>> points;
+    std::vector<std::string> labels;
+    for (int i = 0; i < 10; ++i) {
+      points.emplace_back(1090 - 2 * i, 60 + 4 * i);
+      labels.emplace_back("m");
+      labels.back() += std::to_string(i);
+    }
+    const std::vector<svg::Box> obstacles = {{1000, 50, 1100, 62}, {80, 99.5, 1100, 100.5}};
+    check_placement(points, 4.5, labels, bounds, obstacles);
+  }
+  SECTION("the same input gives the same placement") {
+    const std::vector<std::pair<double, double>> points = {{300, 300}, {301, 300}, {302, 301}};
+    const std::vector<std::string> labels = {"a", "bb", "ccc"};
+    const auto a = svg::place_labels(points, 4.5, labels, 11, bounds);
+    const auto b = svg::place_labels(points, 4.5, labels, 11, bounds);
+    for (std::size_t i = 0; i < a.size(); ++i) {
+      CHECK(a[i].x == b[i].x);
+      CHECK(a[i].baseline == b[i].baseline);
+    }
+  }
+  SECTION("no room at all: the label stays within the bounds and says it does not fit") {
+    const svg::Box tiny{0, 0, 30, 12};
+    const auto spots = svg::place_labels({{15, 6}}, 4.5, {"a long label"}, 11, tiny);
+    REQUIRE(spots.size() == 1);
+    CHECK_FALSE(spots[0].fits);
+    CHECK(spots[0].box.x0 >= 0);
+    CHECK(spots[0].box.y0 >= 0);
+  }
 }

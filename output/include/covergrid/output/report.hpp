@@ -23,6 +23,16 @@ struct ReportOptions {
   std::size_t max_points = 200;
 };
 
+/// The heat-map colour class (0 = furthest below nominal .. 7 = furthest
+/// above; 8 = no value, for NaN) of a coverage figure at a nominal `level`.
+/// The classes are ranges of coverage minus nominal in multiples of
+/// alpha = 1 - level: below -4, -4 to -2, -2 to -1, -1 to -1/2, -1/2 to -1/5,
+/// within +-1/5, 1/5 to 1/2, 1/2 or more. A figure reaches a class whose
+/// lower edge is at or below nominal by engine::meets_coverage(coverage,
+/// nominal + edge), the rule every command judges coverage by, so that
+/// 0.89999999999999969 at 90 % is within +-alpha/5 as audit says it meets 90 %.
+std::size_t coverage_class(double coverage, double level);
+
 /// Indices on the cube's n axis of the n values a report draws (see
 /// ReportOptions::n). InputError naming "--n" for a value not on the axis.
 std::vector<std::size_t> report_n_indices(const CubeReader& cube, const std::vector<std::int64_t>& n);

@@ -68,6 +68,64 @@ struct Axis {
 /// Round [lo, hi] outwards to multiples of a nice step, about `count` steps.
 std::pair<double, double> nice_range(double lo, double hi, int count);
 
+/// Estimated advance width in pixels of one line of `text` at `font_px`, for
+/// the page's first font, DejaVu Sans: each printable ASCII character's
+/// advance (DejaVu Sans 2.37 as measured by FreeType through PIL 9.4,
+/// Debian 12, rounded up to 1/1000 em), 1 em for any other character
+/// (wider than almost every glyph), times 1.03 (Chromium 156 lays 11-pixel
+/// DejaVu Sans out up to 2.5 % wider than the unhinted advances), plus half
+/// a pixel. The fallback fonts of the style sheet are narrower, so the
+/// estimate errs wide; tests/output/check_report.py measures every label of
+/// a page with FreeType, and scripts/check-report-render with Chromium's
+/// layout, and both check that it does.
+double text_width(std::string_view text, double font_px);
+
+/// An axis-aligned box in page pixels, x0 <= x1 and y0 <= y1.
+struct Box {
+  double x0 = 0, y0 = 0, x1 = 0, y1 = 0;
+  /// True when the interiors intersect (boxes that only touch do not).
+  bool overlaps(const Box& other) const;
+  /// True when this box lies wholly within `outer` (edges may coincide).
+  bool inside(const Box& outer) const;
+};
+
+/// Ascent and descent of a text line as fractions of the font size (DejaVu
+/// Sans glyphs reach 0.76 em above and 0.24 em below the baseline; rounded up).
+inline constexpr double text_ascent = 0.82, text_descent = 0.27;
+/// Glyphs may reach this far (a fraction of the font size) beyond their
+/// advances on either side (the hook of a leading "j"; Chromium's getBBox()
+/// found 1.5 pixels at 11 px).
+inline constexpr double text_bearing = 0.15;
+
+/// The box of one line of text anchored at (x, baseline): `anchor` is
+/// "start", "middle" or "end" as SVG's text-anchor; the advance width,
+/// widened by text_bearing on each side.
+Box text_box(double x, double baseline, std::string_view text, double font_px,
+             std::string_view anchor = "start");
+
+/// Where a label went: start-anchored at x with its baseline at `baseline`,
+/// its box, and whether it was displaced from beside its point (then a
+/// leader line joins them). `fits` is false only when no free place was left
+/// in the bounds; the label then sits beside its point and may overlap.
+struct LabelPlacement {
+  double x = 0, baseline = 0;
+  Box box;
+  bool displaced = false;
+  bool fits = true;
+};
+
+/// Greedy label placement for point markers of radius `radius` at `points`:
+/// the labels of the most crowded points first, each at the first free place
+/// among eight positions beside its point (right, left, the four diagonals,
+/// above, below), else at the free place nearest to its point on a 3-pixel
+/// grid over `bounds` (preferring one whose leader line crosses no other
+/// label or marker). A free place lies inside `bounds` and overlaps no
+/// placed label, no marker (a square of side 2 radius + 2 around each
+/// point) and no box of `obstacles`. A pure function of its arguments.
+std::vector<LabelPlacement> place_labels(const std::vector<std::pair<double, double>>& points, double radius,
+                                         const std::vector<std::string>& labels, double font_px,
+                                         const Box& bounds, const std::vector<Box>& obstacles = {});
+
 /// One <svg> element under construction.
 class Canvas {
  public:
@@ -89,9 +147,10 @@ class Canvas {
 
   /// A frame for the plot area x.from..x.to by y.to..y.from with ticks, tick
   /// labels, light grid lines at the ticks (unless grid_lines is false) and
-  /// axis titles (an empty title is left out).
+  /// axis titles (an empty title is left out); without x_tick_labels the x
+  /// ticks are drawn unlabelled (for a panel above another on the same x).
   void axes(const Axis& x, const Axis& y, std::string_view x_title, std::string_view y_title,
-            bool grid_lines = true);
+            bool grid_lines = true, bool x_tick_labels = true);
   /// Opens a nested viewport over the plot area of (x, y) whose user
   /// coordinates are the page's own; close() ends it.
   void open_plot_area(const Axis& x, const Axis& y, const Attrs& attrs = {});
