@@ -215,7 +215,8 @@ PlanResult plan_sample_size(const PlanRequest& q, int threads, const PlanProgres
         if (at(n) < 0) at(n) = plan_meets(q, n) ? 1 : 0;
       });
     });
-    decided = static_cast<std::size_t>(std::count_if(known.begin(), known.end(), [](signed char k) { return k >= 0; }));
+    decided = static_cast<std::size_t>(
+        std::count_if(known.begin(), known.end(), [](signed char k) { return k >= 0; }));
     if (progress) progress({downward, downward ? lo : hi, decided});
   };
   // Downwards from n_to to the largest n that fails: every n above it meets.

@@ -161,20 +161,20 @@ std::string plan_csv_n(const std::string& csv, const std::string& method, const 
 
 TEST_CASE("plan exits 5 when no n of the range meets the requirement", "[cli][plan]") {
   // Wald's coverage is 0 next to p = 0 at every n.
-  const auto none = call({"plan", "--method", "wald", "--level", "0.95", "--p", "0:1", "--min-coverage", "0.9",
-                          "--n", "1:100"});
+  const auto none = call(
+      {"plan", "--method", "wald", "--level", "0.95", "--p", "0:1", "--min-coverage", "0.9", "--n", "1:100"});
   CHECK(none.status == 5);
   CHECK(none.out.find("no n in 1..100 meets it; at n = 100:") != std::string::npos);
   // One method without an answer is enough, also in CSV.
-  const auto mixed = call({"plan", "--method", "wilson", "--method", "wald", "--level", "0.95", "--max-margin",
-                           "0.05", "--n", "1:1000", "--format", "csv"});
+  const auto mixed = call({"plan", "--method", "wilson", "--method", "wald", "--level", "0.95",
+                           "--max-margin", "0.05", "--n", "1:1000", "--format", "csv"});
   CHECK(mixed.status == 5);
   CHECK(plan_csv_n(mixed.out, "wald", "first") == "");
   CHECK(plan_csv_n(mixed.out, "wilson", "first") != "");
   // The margin plan that answered n = 1 (every Wald interval has zero width
   // there): now no n, and the reason is printed.
-  const auto wald = call({"plan", "--method", "wald", "--level", "0.95", "--max-margin", "0.03", "--p", "0:1",
-                          "--n", "1:1200"});
+  const auto wald = call(
+      {"plan", "--method", "wald", "--level", "0.95", "--max-margin", "0.03", "--p", "0:1", "--n", "1:1200"});
   CHECK(wald.status == 5);
   CHECK(wald.out.find("first n that meets it") == std::string::npos);
   CHECK(wald.out.find("the interval at x = 0 has zero width") != std::string::npos);
@@ -187,8 +187,8 @@ TEST_CASE("a margin-only plan needs no --p and gives the --p 0:1 answer", "[cli]
   for (const char* method : {"wilson", "clopper-pearson"}) {
     const auto without = call({"plan", "--method", method, "--level", "0.9", "--max-margin", "0.04", "--n",
                                "1:800", "--format", "csv"});
-    const auto with = call({"plan", "--method", method, "--level", "0.9", "--max-margin", "0.04", "--n", "1:800",
-                            "--p", "0:1", "--format", "csv"});
+    const auto with = call({"plan", "--method", method, "--level", "0.9", "--max-margin", "0.04", "--n",
+                            "1:800", "--p", "0:1", "--format", "csv"});
     INFO(method);
     REQUIRE(without.status == 0);
     REQUIRE(with.status == 0);
@@ -200,8 +200,8 @@ TEST_CASE("a margin-only plan needs no --p and gives the --p 0:1 answer", "[cli]
 }
 
 TEST_CASE("plan marks an answer far below nominal coverage", "[cli][plan]") {
-  const auto far = call({"plan", "--method", "wald-cc", "--level", "0.95", "--max-margin", "0.03", "--n",
-                         "1:1500"});
+  const auto far =
+      call({"plan", "--method", "wald-cc", "--level", "0.95", "--max-margin", "0.03", "--n", "1:1500"});
   REQUIRE(far.status == 0);
   CHECK(far.out.find("!! coverage far below nominal") != std::string::npos);
   CHECK(far.out.find("below nominal - 0.01 = 0.94") != std::string::npos);
@@ -216,9 +216,10 @@ TEST_CASE("plan marks an answer far below nominal coverage", "[cli][plan]") {
 }
 
 TEST_CASE("plan gives the same answers on 1 and 2 threads", "[cli][plan]") {
-  const std::vector<std::string> args = {"plan", "--method", "jeffreys", "--method", "wilson", "--level", "0.95",
-                                         "--p", "0.05:0.95", "--min-coverage", "0.935", "--max-width", "0.2",
-                                         "--n", "1:700", "--format", "csv"};
+  const std::vector<std::string> args = {"plan",     "--method",    "jeffreys", "--method",  "wilson",
+                                         "--level",  "0.95",        "--p",      "0.05:0.95", "--min-coverage",
+                                         "0.935",    "--max-width", "0.2",      "--n",       "1:700",
+                                         "--format", "csv"};
   auto one = args, two = args;
   one.insert(one.end(), {"--threads", "1"});
   two.insert(two.end(), {"--threads", "2"});

@@ -50,11 +50,15 @@ class PlanProgressLine {
   engine::PlanProgressFn callback(const engine::PlanRequest& q) {
     if (!show_) return {};
     start_ = std::chrono::steady_clock::now();
+    last_ = -1;
     return [this, &q](const engine::PlanProgress& p) {
       const double s = std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
+      if (s - last_ < 0.2) return;  // a few redraws a second, not one per block
+      last_ = s;
       err_ << fmt::format("\rplan {}: n {}..{}, {} at n = {}, {} n decided, {:.0f} s   ", q.method.label,
-                          q.n_from, q.n_to, p.downward ? "\"every n from\" scanning down" : "\"first n\" scanning up",
-                          p.n, p.evaluated, s)
+                          q.n_from, q.n_to,
+                          p.downward ? "\"every n from\" scanning down" : "\"first n\" scanning up", p.n,
+                          p.evaluated, s)
            << std::flush;
       drawn_ = true;
     };
@@ -68,6 +72,7 @@ class PlanProgressLine {
   std::ostream& err_;
   bool show_, drawn_ = false;
   std::chrono::steady_clock::time_point start_;
+  double last_ = -1;  // seconds at the last redraw
 };
 
 int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ostream& err) {
@@ -109,8 +114,9 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
       if (needs_p.empty()) needs_p = fmt::format("--{}", engine::requirement_name(r));
     }
   if (a.p.empty() && !margin_only)
-    throw InputError("--p", fmt::format("is required with {} (the p-range it must hold over, e.g. --p 0.05:0.95)",
-                                        needs_p));
+    throw InputError(
+        "--p",
+        fmt::format("is required with {} (the p-range it must hold over, e.g. --p 0.05:0.95)", needs_p));
   std::tie(base.p_lo, base.p_hi) = parse_p_range(a.p.empty() ? std::string("0:1") : a.p, "--p");
   std::vector<engine::PlanRequest> requests;
   for (const auto& m : a.methods) {
@@ -197,9 +203,10 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
            "outcome\n"
            "x = 0..n (half the width two-sided, estimate to limit one-sided), so it does not depend on p.\n"
            "An n at which some outcome gives a zero-width interval meets no width or margin requirement.\n"
-        << fmt::format("\"!!\" marks an answer whose exact infimum of coverage over the p-range is below "
-                       "nominal - {:g}.\n",
-                       engine::coverage_warning_depth(base.level))
+        << fmt::format(
+               "\"!!\" marks an answer whose exact infimum of coverage over the p-range is below "
+               "nominal - {:g}.\n",
+               engine::coverage_warning_depth(base.level))
         << output::wrap_text(output::coverage_caution, 100);
   }
   return any_none ? exit_no_n : exit_ok;
@@ -222,18 +229,19 @@ Command add_plan_command(CLI::App& app) {
   plan->add_option("--max-width", a->max_width, "expected width <= W at every p of the range");
   plan->add_option("--max-margin", a->max_margin, "largest margin of error over every outcome <= M");
   plan->add_option("--format", a->format, "text (default) or csv");
-  plan->add_option("--threads", a->threads, "worker threads (default: all cores); the answers do not depend on it")
+  plan->add_option("--threads", a->threads,
+                   "worker threads (default: all cores); the answers do not depend on it")
       ->check(integer_in(1, 4096));
   plan->add_flag("--quiet", a->quiet, "no progress display (shown on stderr only when it is a terminal)");
   plan->footer(
-      "A zero-width interval (U - L <= 1e-12, e.g. Wald's [0, 0] at x = 0) claims a certainty the data cannot\n"
+      "A zero-width interval (U - L <= 1e-12, e.g. Wald's [0, 0] at x = 0) claims a certainty the data "
+      "cannot\n"
       "give: an n at which any outcome x = 0..n gives one meets no --max-width or --max-margin requirement.\n"
       "Each answer shows the exact infimum of coverage over the p-range (over [0, 1] without --p), marked\n"
       "\"!!\" when it is below nominal - (1 - level)/5 (0.01 at 95 %).\n"
       "Exit status: 0 every method has an n that meets the requirements, 5 some method has none in the\n"
       "search range, 2 bad input, 1 internal failure.");
-  return {plan,
-          [a, plan](std::ostream& out, std::ostream& err) { return cmd_plan(*a, *plan, out, err); }};
+  return {plan, [a, plan](std::ostream& out, std::ostream& err) { return cmd_plan(*a, *plan, out, err); }};
 }
 
 }  // namespace covergrid::cli
