@@ -174,25 +174,29 @@ bool plan_meets(const PlanRequest& q, int n) {
   const bool halve = q.side == Side::two_sided && q.method.method->symmetric() &&
                      std::fabs(q.p_lo + q.p_hi - 1.0) <= 1e-12 && q.p_lo < 0.5;
   const double hi = halve ? 0.5 : q.p_hi;
-  // Cheapest first: the margin needs only the table.
-  for (const auto& [r, value] : q.requirements)
-    if (r == Requirement::max_margin && largest_margin(t, q.side) > value) return false;
-  for (const auto& [r, value] : q.requirements) {
-    switch (r) {
-      case Requirement::max_margin:
-        break;
-      case Requirement::min_coverage:
-        if (!meets_coverage(coverage_infimum(t, q.p_lo, hi, value - coverage_decision_slack).value, value))
-          return false;
-        break;
-      case Requirement::mean_coverage:
-        if (!meets_coverage(coverage_uniform_mean(t, q.p_lo, hi), value)) return false;
-        break;
-      case Requirement::max_width:
-        if (max_expected_width(t, q.p_lo, hi).first > value) return false;
-        break;
+  // Cheapest first: the margin needs only the table, the width 129 window
+  // sums and a short Brent search, the infimum (which stops at the first
+  // value below) and the mean an incomplete beta function per endpoint.
+  for (Requirement kind : {Requirement::max_margin, Requirement::max_width, Requirement::min_coverage,
+                           Requirement::mean_coverage})
+    for (const auto& [r, value] : q.requirements) {
+      if (r != kind) continue;
+      switch (r) {
+        case Requirement::max_margin:
+          if (largest_margin(t, q.side) > value) return false;
+          break;
+        case Requirement::max_width:
+          if (max_expected_width(t, q.p_lo, hi).first > value) return false;
+          break;
+        case Requirement::min_coverage:
+          if (!meets_coverage(coverage_infimum(t, q.p_lo, hi, value - coverage_decision_slack).value, value))
+            return false;
+          break;
+        case Requirement::mean_coverage:
+          if (!meets_coverage(coverage_uniform_mean(t, q.p_lo, hi), value)) return false;
+          break;
+      }
     }
-  }
   return true;
 }
 
