@@ -145,12 +145,19 @@ PlanFigures plan_figures(const PlanRequest& q, int n) {
   return f;
 }
 
+bool coverage_guaranteed(const PlanRequest& q) {
+  if (!q.method.entry || q.method.entry->info.id != "clopper-pearson") return false;
+  return std::all_of(q.requirements.begin(), q.requirements.end(), [&](const auto& r) {
+    return (r.first == Requirement::min_coverage || r.first == Requirement::mean_coverage) &&
+           r.second <= q.level;
+  });
+}
+
 bool plan_meets(const PlanRequest& q, int n) {
-  // Decisions only (the figures reported come from plan_figures): a method
-  // with x <-> n - x symmetry has a mirrored table and, two-sided over a range
-  // symmetric about 1/2, coverage and expected width symmetric in p, so half
-  // the range decides (its mean equals the whole range's mean). The
-  // registry's invariant tests hold every method that declares symmetry to it.
+  // A proof that holds at every n: Clopper-Pearson's coverage is at least
+  // its level at every n and p (each tail misses with probability at most its
+  // share of alpha), so the infimum and the mean meet any threshold up to it.
+  if (coverage_guaranteed(q)) return true;
   const bool margin = has_requirement(q, Requirement::max_margin);
   const bool precision = margin || has_requirement(q, Requirement::max_width);
   if (precision) {
@@ -169,6 +176,11 @@ bool plan_meets(const PlanRequest& q, int n) {
     const double closed = closed_form_max_margin(q, n);
     if (closed >= 0) return closed <= q.requirements.front().second;
   }
+  // Decisions only (the figures reported come from plan_figures): a method
+  // with x <-> n - x symmetry has a mirrored table and, two-sided over a range
+  // symmetric about 1/2, coverage and expected width symmetric in p, so half
+  // the range decides (its mean equals the whole range's mean). The
+  // registry's invariant tests hold every method that declares symmetry to it.
   const IntervalTable t = build_table_mirrored(*q.method.method, n, q.level, q.side);
   if (precision && zero_widths(t).first >= 0) return false;
   const bool halve = q.side == Side::two_sided && q.method.method->symmetric() &&

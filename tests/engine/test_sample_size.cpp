@@ -1,4 +1,5 @@
 // The sample-size search against closed forms and against brute force over n.
+#include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/sample_size.hpp"
@@ -317,4 +318,36 @@ TEST_CASE("the search reports its progress after each block", "[engine][plan]") 
   for (std::size_t i = 1; i < seen.size(); ++i) CHECK(seen[i].evaluated >= seen[i - 1].evaluated);
   CHECK(seen[1].evaluated > seen[0].evaluated);
   CHECK(seen.back().evaluated == r.evaluated);
+}
+
+TEST_CASE("Clopper-Pearson coverage plans at or below the level need no computation", "[engine][plan]") {
+  // Clopper & Pearson (1934): coverage >= level at every n and p, each side.
+  // The proof against the exact infimum and mean at every n (brute force).
+  for (auto side : {methods::Side::two_sided, methods::Side::lower_bound}) {
+    PlanRequest q = request("clopper-pearson", 0.9, 0.03, 0.8, 1, 150);
+    q.side = side;
+    q.requirements = {{Requirement::min_coverage, 0.9}, {Requirement::mean_coverage, 0.9}};
+    CHECK(engine::coverage_guaranteed(q));
+    const auto m = methods::make_instance("clopper-pearson", {});
+    const auto [first, stable] = brute_force(1, 150, [&](int n) {
+      const auto t = engine::build_table(*m.method, n, 0.9, side);
+      return engine::meets_coverage(engine::coverage_infimum(t, 0.03, 0.8).value, 0.9) &&
+             engine::meets_coverage(engine::coverage_uniform_mean(t, 0.03, 0.8), 0.9);
+    });
+    const auto r = engine::plan_sample_size(q, 2);
+    CHECK(first == 1);
+    CHECK(stable == 1);
+    CHECK(r.first.n == 1);
+    CHECK(r.stable.n == 1);
+    CHECK(r.first.inf_coverage >= 0.9 - 1e-10);  // the printed figures are computed
+  }
+  // Not above the level, not with a width, not for another method.
+  PlanRequest q = request("clopper-pearson", 0.9, 0.03, 0.8, 1, 150);
+  q.requirements = {{Requirement::min_coverage, 0.91}};
+  CHECK_FALSE(engine::coverage_guaranteed(q));
+  q.requirements = {{Requirement::min_coverage, 0.85}, {Requirement::max_width, 0.3}};
+  CHECK_FALSE(engine::coverage_guaranteed(q));
+  q = request("jeffreys", 0.9, 0.03, 0.8, 1, 150);
+  q.requirements = {{Requirement::min_coverage, 0.85}};
+  CHECK_FALSE(engine::coverage_guaranteed(q));
 }

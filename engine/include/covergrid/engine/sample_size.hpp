@@ -101,10 +101,16 @@ PlanFigures plan_figures(const PlanRequest& request, int n);
 /// negative value where no closed form applies.
 double closed_form_max_margin(const PlanRequest& request, int n);
 
+/// True when every requirement is a coverage one (minimum or mean) at or
+/// below the level and the method is clopper-pearson, whose coverage is at
+/// least its level at every n and p on every side (Clopper & Pearson 1934):
+/// every n meets them, with nothing to compute.
+bool coverage_guaranteed(const PlanRequest& request);
+
 /// Whether n meets every requirement (stops early at the first one failed;
 /// cheap proofs first: zero width at x = 0 or n and the margin at the middle
 /// x reject without the table, closed_form_max_margin decides a margin-only
-/// requirement without it).
+/// requirement without it, coverage_guaranteed needs nothing).
 bool plan_meets(const PlanRequest& request, int n);
 
 /// The search. `threads` = 0 uses every core. Each n is decided on its own,
