@@ -1,6 +1,10 @@
+// The sample-size search: per-n decisions (cheap proofs first, then the
+// exact figures on a mirrored table), scanned from both ends of the range in
+// parallel blocks of n.
 #include "covergrid/engine/sample_size.hpp"
 
 #include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/error.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
@@ -11,6 +15,8 @@
 
 #include <algorithm>
 #include <cmath>
+#include <string>
+#include <tuple>
 
 namespace covergrid::engine {
 
@@ -42,6 +48,22 @@ double margin_of_error(double lower, double upper, int x, int n, Side side) {
 }
 
 namespace {
+
+/// The first zero-width x of the table and how many there are.
+std::pair<int, int> zero_widths(const IntervalTable& t) {
+  int first = -1, count = 0;
+  for (int x = 0; x <= t.n; ++x)
+    if (t.width[static_cast<std::size_t>(x)] <= zero_width_tolerance) {
+      if (first < 0) first = x;
+      ++count;
+    }
+  return {first, count};
+}
+
+bool has_requirement(const PlanRequest& q, Requirement r) {
+  return std::any_of(q.requirements.begin(), q.requirements.end(),
+                     [&](const auto& req) { return req.first == r; });
+}
 
 double largest_margin(const IntervalTable& t, Side side) {
   double m = 0;
@@ -84,6 +106,29 @@ std::pair<double, double> max_expected_width(const IntervalTable& t, double p_lo
   return {best_value, p_lo + best * step};
 }
 
+double coverage_warning_depth(double level) { return (1.0 - level) / 5.0; }
+
+bool coverage_far_below(const PlanFigures& f, double level) {
+  return !meets_coverage(f.inf_coverage, level - coverage_warning_depth(level));
+}
+
+double closed_form_max_margin(const PlanRequest& q, int n) {
+  if (!q.method.entry) return -1;
+  const std::string& id = q.method.entry->info.id;
+  if (!(id == "wald-half" || (id == "wilson" && q.side == Side::two_sided))) return -1;
+  double best = 0;
+  for (int x : {n / 2, (n + 1) / 2}) {
+    const methods::Limits l = methods::interval(*q.method.method, x, n, q.level, q.side);
+    // One-sided bounds have a fixed end at 0 or 1 by definition; only the
+    // computed end must be unclipped for the argument to hold.
+    const bool clipped = (q.side != Side::upper_bound && l.raw_lower < 0.0) ||
+                         (q.side != Side::lower_bound && l.raw_upper > 1.0);
+    if (clipped) return -1;
+    best = std::max(best, margin_of_error(l.lower, l.upper, x, n, q.side));
+  }
+  return best;
+}
+
 PlanFigures plan_figures(const PlanRequest& q, int n) {
   const IntervalTable t = build_table(*q.method.method, n, q.level, q.side);
   PlanFigures f;
@@ -96,43 +141,78 @@ PlanFigures plan_figures(const PlanRequest& q, int n) {
   f.max_width = w.first;
   f.max_width_p = w.second;
   f.max_margin = largest_margin(t, q.side);
+  std::tie(f.zero_width_x, f.zero_width_count) = zero_widths(t);
   return f;
 }
 
+bool coverage_guaranteed(const PlanRequest& q) {
+  if (!q.method.entry || q.method.entry->info.id != "clopper-pearson") return false;
+  return std::all_of(q.requirements.begin(), q.requirements.end(), [&](const auto& r) {
+    return (r.first == Requirement::min_coverage || r.first == Requirement::mean_coverage) &&
+           r.second <= q.level;
+  });
+}
+
 bool plan_meets(const PlanRequest& q, int n) {
+  // A proof that holds at every n: Clopper-Pearson's coverage is at least
+  // its level at every n and p (each tail misses with probability at most its
+  // share of alpha), so the infimum and the mean meet any threshold up to it.
+  if (coverage_guaranteed(q)) return true;
+  const bool margin = has_requirement(q, Requirement::max_margin);
+  const bool precision = margin || has_requirement(q, Requirement::max_width);
+  if (precision) {
+    // Proofs of failure from single intervals, before any table: a zero-width
+    // interval at x = 0 or x = n, or a margin above the bound at the middle x
+    // (the largest margin is at least any one x's).
+    for (int x : {0, n, n / 2, (n + 1) / 2}) {
+      const methods::Limits l = methods::interval(*q.method.method, x, n, q.level, q.side);
+      if (l.upper - l.lower <= zero_width_tolerance) return false;
+      for (const auto& [r, value] : q.requirements)
+        if (r == Requirement::max_margin && margin_of_error(l.lower, l.upper, x, n, q.side) > value)
+          return false;
+    }
+  }
+  if (margin && q.requirements.size() == 1) {
+    const double closed = closed_form_max_margin(q, n);
+    if (closed >= 0) return closed <= q.requirements.front().second;
+  }
   // Decisions only (the figures reported come from plan_figures): a method
   // with x <-> n - x symmetry has a mirrored table and, two-sided over a range
   // symmetric about 1/2, coverage and expected width symmetric in p, so half
   // the range decides (its mean equals the whole range's mean). The
   // registry's invariant tests hold every method that declares symmetry to it.
   const IntervalTable t = build_table_mirrored(*q.method.method, n, q.level, q.side);
+  if (precision && zero_widths(t).first >= 0) return false;
   const bool halve = q.side == Side::two_sided && q.method.method->symmetric() &&
                      std::fabs(q.p_lo + q.p_hi - 1.0) <= 1e-12 && q.p_lo < 0.5;
   const double hi = halve ? 0.5 : q.p_hi;
-  // Cheapest first: the margin needs only the table.
-  for (const auto& [r, value] : q.requirements)
-    if (r == Requirement::max_margin && largest_margin(t, q.side) > value) return false;
-  for (const auto& [r, value] : q.requirements) {
-    switch (r) {
-      case Requirement::max_margin:
-        break;
-      case Requirement::min_coverage:
-        if (coverage_infimum(t, q.p_lo, hi, value - coverage_decision_slack).value <
-            value - coverage_decision_slack)
-          return false;
-        break;
-      case Requirement::mean_coverage:
-        if (coverage_uniform_mean(t, q.p_lo, hi) < value - coverage_decision_slack) return false;
-        break;
-      case Requirement::max_width:
-        if (max_expected_width(t, q.p_lo, hi).first > value) return false;
-        break;
+  // Cheapest first: the margin needs only the table, the width 129 window
+  // sums and a short Brent search, the infimum (which stops at the first
+  // value below) and the mean an incomplete beta function per endpoint.
+  for (Requirement kind : {Requirement::max_margin, Requirement::max_width, Requirement::min_coverage,
+                           Requirement::mean_coverage})
+    for (const auto& [r, value] : q.requirements) {
+      if (r != kind) continue;
+      switch (r) {
+        case Requirement::max_margin:
+          if (largest_margin(t, q.side) > value) return false;
+          break;
+        case Requirement::max_width:
+          if (max_expected_width(t, q.p_lo, hi).first > value) return false;
+          break;
+        case Requirement::min_coverage:
+          if (!meets_coverage(coverage_infimum(t, q.p_lo, hi, value - coverage_decision_slack).value, value))
+            return false;
+          break;
+        case Requirement::mean_coverage:
+          if (!meets_coverage(coverage_uniform_mean(t, q.p_lo, hi), value)) return false;
+          break;
+      }
     }
-  }
   return true;
 }
 
-PlanResult plan_sample_size(const PlanRequest& q, int threads) {
+PlanResult plan_sample_size(const PlanRequest& q, int threads, const PlanProgressFn& progress) {
   if (!q.method.method) throw InputError("plan", "names no method");
   if (!q.method.method->supports(q.side))
     throw InputError(q.method.label, "does not define the side " + std::string(methods::side_name(q.side)));
@@ -144,18 +224,22 @@ PlanResult plan_sample_size(const PlanRequest& q, int threads) {
   // Verdict per n of the range: -1 not evaluated, 0 fails, 1 meets.
   std::vector<signed char> known(static_cast<std::size_t>(q.n_to - q.n_from + 1), -1);
   auto at = [&](int n) -> signed char& { return known[static_cast<std::size_t>(n - q.n_from)]; };
-  auto evaluate = [&](int lo, int hi) {  // n in [lo, hi], in parallel
+  std::size_t decided = 0;
+  auto evaluate = [&](int lo, int hi, bool downward) {  // n in [lo, hi], in parallel
     arena.execute([&] {
       tbb::parallel_for(lo, hi + 1, [&](int n) {
         if (at(n) < 0) at(n) = plan_meets(q, n) ? 1 : 0;
       });
     });
+    decided = static_cast<std::size_t>(
+        std::count_if(known.begin(), known.end(), [](signed char k) { return k >= 0; }));
+    if (progress) progress({downward, downward ? lo : hi, decided});
   };
   // Downwards from n_to to the largest n that fails: every n above it meets.
   int last_failure = q.n_from - 1;  // none yet
   for (int hi = q.n_to; hi >= q.n_from && last_failure < q.n_from; hi -= block) {
     const int lo = std::max(q.n_from, hi - block + 1);
-    evaluate(lo, hi);
+    evaluate(lo, hi, true);
     for (int n = hi; n >= lo; --n)
       if (at(n) == 0) {
         last_failure = n;
@@ -169,7 +253,7 @@ PlanResult plan_sample_size(const PlanRequest& q, int threads) {
   int first = stable;
   for (int lo = q.n_from; lo < last_failure && first == stable; lo += block) {
     const int hi = std::min(last_failure - 1, lo + block - 1);
-    evaluate(lo, hi);
+    evaluate(lo, hi, false);
     for (int n = lo; n <= hi; ++n)
       if (at(n) == 1) {
         first = n;
@@ -180,6 +264,7 @@ PlanResult plan_sample_size(const PlanRequest& q, int threads) {
   out.found = first <= q.n_to;
   if (out.found) out.first = plan_figures(q, first);
   if (out.stable_found) out.stable = stable == first ? out.first : plan_figures(q, stable);
+  if (!out.found) out.at_end = plan_figures(q, q.n_to);
   return out;
 }
 

@@ -7,7 +7,9 @@
 //   memory         peak RSS of a full run to a cube with P and 10 P points of p
 //   mc-costs       per-replicate cost against the bare sampler loop; all methods vs one
 //   mc-threads     a Monte Carlo grid on 1 and 2 threads; the cost of 1e5 cells x 1e4 replicates
+//   plan           sample-size searches: wall times, against brute force over every n, 2 threads vs 1
 #include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/monte_carlo.hpp"
@@ -290,20 +292,41 @@ replicates = 1000
 }
 
 /// The sample-size search: wall time of plans over n up to 5000 on two
-/// threads, and against brute force (every n, full tables, whole range) on
-/// n up to 1500.
+/// threads; the search against brute force (every n, full tables, whole
+/// range) for a minimum-coverage plan on n up to 1500 and for margin-only
+/// plans on n up to 5000 (where the closed form and the middle-x proofs
+/// spare most tables); and the search on 2 threads against 1.
 void plan_search() {
   using clock = std::chrono::steady_clock;
   auto seconds = [](auto a, auto b) { return std::chrono::duration<double>(b - a).count(); };
-  fmt::print("plan (sample-size search, two threads):\n");
-  for (const char* id : {"wilson", "clopper-pearson", "jeffreys"}) {
+  auto request = [](const char* id, double lo, double hi, int to) {
     e::PlanRequest q;
     q.method = covergrid::methods::make_instance(id, {});
     q.level = 0.95;
-    q.p_lo = 0.05;
-    q.p_hi = 0.95;
+    q.p_lo = lo;
+    q.p_hi = hi;
     q.n_from = 1;
-    q.n_to = 5000;
+    q.n_to = to;
+    return q;
+  };
+  // Brute force: every n of the range decided on its full table, on two threads.
+  auto brute = [](const e::PlanRequest& q, auto meets) {
+    std::vector<char> met(static_cast<std::size_t>(q.n_to) + 1, 0);
+    tbb::task_arena arena(2);
+    arena.execute([&] {
+      tbb::parallel_for(q.n_from, q.n_to + 1, [&](int n) {
+        const auto t = e::build_table(*q.method.method, n, q.level, q.side);
+        met[static_cast<std::size_t>(n)] = meets(t) ? 1 : 0;
+      });
+    });
+    int first = -1;
+    for (int n = q.n_from; n <= q.n_to && first < 0; ++n)
+      if (met[static_cast<std::size_t>(n)]) first = n;
+    return first;
+  };
+  fmt::print("plan (sample-size search, two threads):\n");
+  for (const char* id : {"wilson", "clopper-pearson", "jeffreys"}) {
+    e::PlanRequest q = request(id, 0.05, 0.95, 5000);
     q.requirements = {{e::Requirement::min_coverage, 0.94}};
     const auto t0 = clock::now();
     const auto r = e::plan_sample_size(q, 2);
@@ -313,27 +336,59 @@ void plan_search() {
         "{} n evaluated)\n",
         id, seconds(t0, t1), r.found ? r.first.n : -1, r.stable_found ? r.stable.n : -1, r.evaluated);
   }
-  e::PlanRequest q;
-  q.method = covergrid::methods::make_instance("wilson", {});
-  q.p_lo = 0.05;
-  q.p_hi = 0.95;
-  q.n_to = 1500;
-  q.requirements = {{e::Requirement::min_coverage, 0.94}};
-  const auto t0 = clock::now();
-  const auto r = e::plan_sample_size(q, 2);
-  const auto t1 = clock::now();
-  std::vector<char> meets(1501, 0);
-  tbb::task_arena arena(2);
-  arena.execute([&] {
-    tbb::parallel_for(1, 1501, [&](int n) {
-      const auto t = e::build_table(*q.method.method, n, 0.95, covergrid::methods::Side::two_sided);
-      meets[static_cast<std::size_t>(n)] = e::coverage_infimum(t, 0.05, 0.95).value >= 0.94;
+  {
+    e::PlanRequest q = request("wilson", 0.05, 0.95, 1500);
+    q.requirements = {{e::Requirement::min_coverage, 0.94}};
+    const auto t0 = clock::now();
+    const auto r = e::plan_sample_size(q, 2);
+    const auto t1 = clock::now();
+    const int first = brute(q, [](const e::IntervalTable& t) {
+      return covergrid::engine::meets_coverage(e::coverage_infimum(t, 0.05, 0.95).value, 0.94);
     });
-  });
-  const auto t2 = clock::now();
-  fmt::print(
-      "  wilson n = 1..1500: search {:.2f} s, brute force over every n {:.2f} s: ratio {:.2f} (first n {})\n",
-      seconds(t0, t1), seconds(t1, t2), seconds(t0, t1) / seconds(t1, t2), r.first.n);
+    const auto t2 = clock::now();
+    fmt::print(
+        "  wilson min coverage, n = 1..1500: search {:.2f} s, brute force over every n {:.2f} s: ratio "
+        "{:.2f} "
+        "(first n {} and {})\n",
+        seconds(t0, t1), seconds(t1, t2), seconds(t0, t1) / seconds(t1, t2), r.first.n, first);
+  }
+  {
+    // Threads: the same search, 1 thread then 2 (after the warm-up above).
+    e::PlanRequest q = request("jeffreys", 0.05, 0.95, 2500);
+    q.requirements = {{e::Requirement::min_coverage, 0.94}};
+    const auto t0 = clock::now();
+    const auto one = e::plan_sample_size(q, 1);
+    const auto t1 = clock::now();
+    const auto two = e::plan_sample_size(q, 2);
+    const auto t2 = clock::now();
+    fmt::print(
+        "  jeffreys min coverage, n = 1..2500: 1 thread {:.2f} s, 2 threads {:.2f} s: speed-up {:.2f} (same "
+        "answer: {})\n",
+        seconds(t0, t1), seconds(t1, t2), seconds(t0, t1) / seconds(t1, t2),
+        one.first.n == two.first.n && one.stable.n == two.stable.n ? "yes" : "NO");
+  }
+  for (const char* id : {"wilson", "wald-half", "clopper-pearson"}) {
+    e::PlanRequest q = request(id, 0, 1, 5000);
+    q.requirements = {{e::Requirement::max_margin, 0.03}};
+    const auto t0 = clock::now();
+    const auto r = e::plan_sample_size(q, 2);
+    const auto t1 = clock::now();
+    const int first = brute(q, [&](const e::IntervalTable& t) {
+      double largest = 0;
+      for (int x = 0; x <= t.n; ++x) {
+        const std::size_t i = static_cast<std::size_t>(x);
+        if (t.width[i] <= e::zero_width_tolerance) return false;
+        largest = std::max(largest, e::margin_of_error(t.lower[i], t.upper[i], x, t.n, q.side));
+      }
+      return largest <= 0.03;
+    });
+    const auto t2 = clock::now();
+    fmt::print(
+        "  {:<16} max margin 0.03, n = 1..5000: search {:.3f} s, brute force over every n {:.2f} s: ratio "
+        "{:.3f} "
+        "(first n {} and {})\n",
+        id, seconds(t0, t1), seconds(t1, t2), seconds(t0, t1) / seconds(t1, t2), r.first.n, first);
+  }
 }
 
 /// Measured time of single chunks (one thread, tables built inside) against

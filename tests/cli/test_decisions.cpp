@@ -117,6 +117,10 @@ TEST_CASE("audit and plan reject impossible requests with exit 2", "[cli][audit]
       {{"plan", "--method", "blaker", "--side", "lower-bound", "--level", "0.95", "--p", "0.1:0.9",
         "--max-width", "0.1"},
        "does not define the side"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--min-coverage", "0.94"},
+       "--p: is required with --min-coverage"},
+      {{"plan", "--method", "wilson", "--level", "0.95", "--max-margin", "0.05", "--max-width", "0.1"},
+       "--p: is required with --max-width"},
   };
   for (const auto& [args, expected] : cases) {
     const auto r = call(args);
@@ -140,6 +144,88 @@ TEST_CASE("plan prints first and stable n for several methods", "[cli][plan]") {
   REQUIRE(text.status == 0);
   CHECK(text.out.find("first n that meets it") != std::string::npos);
   CHECK(text.out.find("long-run property") != std::string::npos);
+}
+
+namespace {
+
+/// The n of the CSV row "method",answer (empty when no n).
+std::string plan_csv_n(const std::string& csv, const std::string& method, const std::string& answer) {
+  const std::string key = "\"" + method + "\"," + answer + ",";
+  const auto at = csv.find(key);
+  if (at == std::string::npos) return "missing";
+  const auto from = at + key.size();
+  return csv.substr(from, csv.find(',', from) - from);
+}
+
+}  // namespace
+
+TEST_CASE("plan exits 5 when no n of the range meets the requirement", "[cli][plan]") {
+  // Wald's coverage is 0 next to p = 0 at every n.
+  const auto none = call(
+      {"plan", "--method", "wald", "--level", "0.95", "--p", "0:1", "--min-coverage", "0.9", "--n", "1:100"});
+  CHECK(none.status == 5);
+  CHECK(none.out.find("no n in 1..100 meets it; at n = 100:") != std::string::npos);
+  // One method without an answer is enough, also in CSV.
+  const auto mixed = call({"plan", "--method", "wilson", "--method", "wald", "--level", "0.95",
+                           "--max-margin", "0.05", "--n", "1:1000", "--format", "csv"});
+  CHECK(mixed.status == 5);
+  CHECK(plan_csv_n(mixed.out, "wald", "first") == "");
+  CHECK(plan_csv_n(mixed.out, "wilson", "first") != "");
+  // The margin plan that answered n = 1 (every Wald interval has zero width
+  // there): now no n, and the reason is printed.
+  const auto wald = call(
+      {"plan", "--method", "wald", "--level", "0.95", "--max-margin", "0.03", "--p", "0:1", "--n", "1:1200"});
+  CHECK(wald.status == 5);
+  CHECK(wald.out.find("first n that meets it") == std::string::npos);
+  CHECK(wald.out.find("the interval at x = 0 has zero width") != std::string::npos);
+  const auto met = call({"plan", "--method", "wilson", "--level", "0.95", "--max-margin", "0.05"});
+  CHECK(met.status == 0);
+  CHECK(met.err.empty());  // stderr is no terminal here: no progress display
+}
+
+TEST_CASE("a margin-only plan needs no --p and gives the --p 0:1 answer", "[cli][plan]") {
+  for (const char* method : {"wilson", "clopper-pearson"}) {
+    const auto without = call({"plan", "--method", method, "--level", "0.9", "--max-margin", "0.04", "--n",
+                               "1:800", "--format", "csv"});
+    const auto with = call({"plan", "--method", method, "--level", "0.9", "--max-margin", "0.04", "--n",
+                            "1:800", "--p", "0:1", "--format", "csv"});
+    INFO(method);
+    REQUIRE(without.status == 0);
+    REQUIRE(with.status == 0);
+    CHECK(without.out == with.out);
+    CHECK(std::stoi(plan_csv_n(without.out, method, "first")) > 100);
+  }
+  const auto text = call({"plan", "--method", "wilson", "--level", "0.9", "--max-margin", "0.04"});
+  CHECK(text.out.find("p in [0, 1] (no --p: the coverage figures are over all p)") != std::string::npos);
+}
+
+TEST_CASE("plan marks an answer far below nominal coverage", "[cli][plan]") {
+  const auto far =
+      call({"plan", "--method", "wald-cc", "--level", "0.95", "--max-margin", "0.03", "--n", "1:1500"});
+  REQUIRE(far.status == 0);
+  CHECK(far.out.find("!! coverage far below nominal") != std::string::npos);
+  CHECK(far.out.find("below nominal - 0.01 = 0.94") != std::string::npos);
+  const auto far_csv = call({"plan", "--method", "wald-cc", "--level", "0.95", "--max-margin", "0.03", "--n",
+                             "1:1500", "--format", "csv"});
+  CHECK(far_csv.out.find(",1\n") != std::string::npos);  // coverage_far_below = 1
+  const auto fine = call({"plan", "--method", "wilson", "--level", "0.95", "--max-margin", "0.03", "--p",
+                          "0.05:0.95", "--n", "1:1500"});
+  REQUIRE(fine.status == 0);
+  CHECK(fine.out.find("first n that meets it") != std::string::npos);
+  CHECK(fine.out.find("!! coverage") == std::string::npos);
+}
+
+TEST_CASE("plan gives the same answers on 1 and 2 threads", "[cli][plan]") {
+  const std::vector<std::string> args = {"plan",     "--method",    "jeffreys", "--method",  "wilson",
+                                         "--level",  "0.95",        "--p",      "0.05:0.95", "--min-coverage",
+                                         "0.935",    "--max-width", "0.2",      "--n",       "1:700",
+                                         "--format", "csv"};
+  auto one = args, two = args;
+  one.insert(one.end(), {"--threads", "1"});
+  two.insert(two.end(), {"--threads", "2"});
+  const auto a = call(one), b = call(two);
+  REQUIRE(a.status == 0);
+  CHECK(a.out == b.out);
 }
 
 TEST_CASE("rank orders methods by the stated criterion per n band", "[cli][rank]") {

@@ -14,6 +14,7 @@ enum Exit : int {
   exit_bad_input = 2,
   exit_refuted = 3,
   exit_inconclusive = 4,
+  exit_no_n = 5,  // plan: no n in the search range meets the requirements
 };
 
 /// Runs `covergrid <args...>` (args excludes the program name) and returns the
