@@ -1025,11 +1025,10 @@ std::string Report::ranking_table(const Combo& c, const std::vector<RankingRow>&
                            {pct(r.share_below), r.share_below},
                            {fixed(r.mean_width, 4), r.mean_width}});
   out += "</table>\n";
-  return out +
-         "<p>Methods ordered by the mean over n of the RMS deviation of grid coverage from nominal (closest "
-         "first); each figure is a mean over every n of the cube, the worst case the smallest over "
-         "them. \u201cMeets nominal\u201d: the worst case reaches the nominal level within 1e-10, the rule "
-         "audit and rank judge coverage by.</p>\n";
+  // The same order and column meanings as the headline and `covergrid rank`.
+  return out + "<p>" + escape(ranking_footnote(exact_)) +
+         " \u201cMeets nominal\u201d: the worst case reaches the nominal level within 1e-10, the rule "
+         "every command judges coverage by.</p>\n";
 }
 
 /// Removes a temporary file unless it was renamed into place.
