@@ -8,7 +8,9 @@
 //   mc-costs       per-replicate cost against the bare sampler loop; all methods vs one
 //   mc-threads     a Monte Carlo grid on 1 and 2 threads; the cost of 1e5 cells x 1e4 replicates
 //   plan           sample-size searches: wall times, against brute force over every n, 2 threads vs 1
+//   estimate       run's up-front time estimate against the measured wall time of the same run
 #include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/estimate.hpp"
 #include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
@@ -504,6 +506,44 @@ tables = ""
       merge, merge / gb, gb, single);
 }
 
+/// The estimate `run` prints before it starts, against the wall time of the
+/// same run to a cube (2 threads), for grids of different shapes.
+void estimate_accuracy() {
+  namespace fs = std::filesystem;
+  const fs::path dir = fs::temp_directory_path() / "covergrid-bench-estimate";
+  struct Grid {
+    const char* name;
+    const char* grid;
+  };
+  const Grid grids[] = {
+      {"small n, exact", "n = { from = 1, to = 200 }\np = { from = 0.001, to = 0.999, count = 2000 }\n"},
+      {"large n, exact",
+       "n = { from = 1000, to = 20000, count = 20, spacing = \"log\" }\n"
+       "p = { from = 0.001, to = 0.999, count = 2000 }\n"},
+      {"exact + 2000 replicates",
+       "n = { from = 10, to = 400, step = 10 }\np = { from = 0.01, to = 0.99, count = 1000 }\n"
+       "[evaluate]\nreplicates = 2000\n"}};
+  fmt::print("estimate: run's up-front estimate against the measured run (2 threads, 5 methods, 95 %)\n");
+  for (const auto& g : grids) {
+    fs::remove_all(dir);
+    fs::create_directories(dir);
+    const std::string text = std::string("[grid]\nlevels = [0.95]\n") + g.grid + five_methods +
+                             "[output]\ncube = \"e.h5\"\ntables = \"\"\n";
+    std::ofstream(dir / "e.toml") << text;
+    const auto s = covergrid::scenarios::load_scenario_file((dir / "e.toml").string());
+    const auto plan = e::make_plan(s);
+    std::vector<std::size_t> all(plan.chunks.size());
+    for (std::size_t i = 0; i < all.size(); ++i) all[i] = i;
+    const auto est = e::estimate_run(s, plan, all, 2);
+    const double actual = timed("cd '" + dir.string() + "' && '" + std::string(COVERGRID_EXE) +
+                                "' run e.toml --quiet >/dev/null");
+    fmt::print(
+        "  {:<24} estimate {:7.2f} s (calibration {:.2f} s, {} chunks)  measured {:7.2f} s  ratio {:.2f}\n",
+        g.name, est.seconds, est.calibration_seconds, est.chunks_timed, actual, est.seconds / actual);
+  }
+  fs::remove_all(dir);
+}
+
 /// MPI: 2 ranks x 1 thread against 1 rank x 1 thread, the whole run (start,
 /// compute, cube), on 1e5 cells; needs the MPI build (COVERGRID_MPI_EXE) and
 /// its mpirun (COVERGRID_MPIRUN), which scripts/bench sets.
@@ -576,6 +616,7 @@ int main(int argc, char** argv) {
   if (what == "all" || what == "mc-costs") mc_costs();
   if (what == "all" || what == "mc-threads") mc_threads();
   if (what == "all" || what == "plan") plan_search();
+  if (what == "all" || what == "estimate") estimate_accuracy();
   if (what == "all" || what == "shard-cost") shard_cost();
   if (what == "all" || what == "shards") shards();
   if (what == "all" || what == "merge") merge_cost();
