@@ -28,6 +28,14 @@ std::string output_location_problem(const std::string& path) {
   }
   if (!fs::is_directory(folder, ec)) return folder.string() + " is a file, not a folder";
   if (fs::is_directory(target, ec)) return path + " is a folder, not a file";
+  // The writers' own files beside the target: a folder in their way would
+  // only be found at the end of the work.
+  for (const char* suffix : {".partial", ".journal"}) {
+    const std::string beside = path + suffix;
+    if (fs::is_directory(beside, ec))
+      return beside + " is a folder in the way of the file written there while " + path +
+             " is in progress; remove or rename it";
+  }
   // Probe: the writers create NAME.partial / NAME.journal beside the target
   // and rename into place, so the folder must accept a new file.
   std::random_device rd;

@@ -3,7 +3,7 @@
 // markup that also parses as XHTML (every element closed, every text and
 // attribute escaped). The page shows, per (model, side, level):
 //   - coverage against p for the chosen n, one SVG of panels per method (at
-//     most three panels a row, plot areas of at least 300 x 170 pixels), with
+//     most three panels a row, plot areas of at least 300 x 220 pixels), with
 //     the nominal level (for a simulated cube a band of +-1.96 standard
 //     errors around the estimate);
 //   - a heat map per method of coverage minus nominal over (n, p), binned
@@ -94,10 +94,13 @@ constexpr double inf = std::numeric_limits<double>::infinity();
 constexpr double page_width = 1120;
 constexpr std::size_t max_auto_n = 6;
 // Coverage-against-p panels: at most three a row across the page, each plot
-// area at least 300 x 170 pixels (enough to read oscillations of a few
-// tenths of alpha around nominal).
+// area at least 300 x 220 pixels over coverage from nominal - 2 alpha to 1,
+// so that the band nominal +- alpha where coverage oscillates is about 150
+// pixels tall at every level (enough to read oscillations of a few tenths of
+// alpha); deeper collapses leave the panel at its foot.
 constexpr std::size_t max_panel_columns = 3;
-constexpr double min_panel_h = 170;
+constexpr double min_panel_h = 220;
+constexpr double panel_floor_alphas = 2;
 // Font size of the trade-off plot's labels (svg .point-label and
 // .nominal-label), which their placement measures.
 constexpr double label_font = 11;
@@ -553,7 +556,7 @@ std::string Report::section(const Combo& c) const {
 
 std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_t>& present) const {
   const double level = cube_.levels[c.level], alpha = 1 - level;
-  const double y_lo = std::max(0.0, level - 4 * alpha);
+  const double y_lo = std::max(0.0, level - panel_floor_alphas * alpha);
   // At most three panels a row across the page width, so that each plot area
   // is at least min_panel_w x min_panel_h pixels; one SVG per method, so that
   // print breaks pages between methods rather than through a panel.

@@ -121,7 +121,8 @@ std::string text_block(const Claim& c, const Verdict& v) {
                 : fmt::format("n = {}, mean coverage {:.8f}", v.exact_worst_n, v.exact_worst_coverage);
         s += fmt::format(
             "  exact     exact enumeration decides this claim at once: {} (worst {}{})\n"
-            "            no more replicates are needed: audit it without --replicates\n",
+            "            no more replicates are needed: audit it exactly (without --replicates, or without "
+            "`replicates` in a claims file)\n",
             engine::outcome_name(v.exact_outcome), where,
             c.kind == ClaimKind::minimum && c.p_lo < c.p_hi ? "; over the continuous p range" : "");
       }

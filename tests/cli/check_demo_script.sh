@@ -1,5 +1,6 @@
 #!/usr/bin/env bash
-# scripts/demo builds only the executable (not the test targets) and says
+# scripts/demo installs only the build packages, builds only the executable
+# (not the test targets), and says
 # what it is doing between the package check and the demo's first output.
 # Run on a copy of scripts/demo and scripts/build beside a stand-in setup,
 # a stand-in cmake on PATH that records its arguments, and a stand-in
@@ -10,7 +11,7 @@ scripts=$1 work=$2
 rm -rf "$work"
 mkdir -p "$work/repo/scripts" "$work/bin" "$work/repo/build/engine/cli"
 cp "$scripts/demo" "$scripts/build" "$work/repo/scripts/"
-printf '#!/bin/sh\nexit 0\n' >"$work/repo/scripts/setup"
+printf "#!/bin/sh\necho \"setup \$*\" >>\"\$CMAKE_LOG\"\n" >"$work/repo/scripts/setup"
 cat >"$work/bin/cmake" <<'SH'
 #!/bin/sh
 echo "$*" >>"$CMAKE_LOG"
@@ -21,6 +22,7 @@ chmod +x "$work/bin/cmake" "$work/repo/scripts/setup" "$work/repo/build/engine/c
 export CMAKE_LOG=$work/cmake.log
 PATH="$work/bin:$PATH" "$work/repo/scripts/demo" >"$work/out.txt" 2>"$work/err.txt"
 fail() { echo "check_demo_script: $*" >&2; cat "$work/err.txt" >&2; exit 1; }
+grep -q '^setup --build$' "$CMAKE_LOG" || fail "setup was not limited to the build packages"
 grep -q -- '--build build -j2 --target covergrid$' "$CMAKE_LOG" || fail "the build was not limited to covergrid: $(cat "$CMAKE_LOG")"
 grep -q '^demo: checking the Debian packages' "$work/err.txt" || fail "no word before setup"
 grep -q '^demo: building the covergrid executable' "$work/err.txt" || fail "no word before the build"

@@ -183,7 +183,7 @@ TEST_CASE("an inconclusive simulated audit says that exact sums decide it", "[cl
                          "--replicates", "300", "--seed", "3", "--tolerance", tolerance});
   REQUIRE(sim.status == 4);
   CHECK(sim.out.find("exact enumeration decides this claim at once: holds") != std::string::npos);
-  CHECK(sim.out.find("audit it without --replicates") != std::string::npos);
+  CHECK(sim.out.find("audit it exactly (without --replicates") != std::string::npos);
   const auto csv = call({"audit", "--method", "wilson", "--level", "0.95", "--n", "40", "--p", "0.3",
                          "--replicates", "300", "--seed", "3", "--tolerance", tolerance, "--format", "csv"});
   const auto crow = csv_rows(csv.out);

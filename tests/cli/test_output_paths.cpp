@@ -83,6 +83,30 @@ TEST_CASE("run refuses an unwritable cube or tables location before any work", "
   CHECK(entries(dir.path()) == 6);  // the five scenario files and the folder, nothing else
 }
 
+TEST_CASE("a folder where a writer's temporary file goes is refused before any work", "[cli][paths]") {
+  ScratchDir dir("paths-partial");
+  std::ofstream(dir.file("m.toml")) << scenario("[output]\ncube = \"m.h5\"\ntables = \"\"\n");
+  for (const char* suffix : {".partial", ".journal"}) {
+    INFO(suffix);
+    const std::string blocker = dir.file(std::string("m.h5") + suffix);
+    fs::create_directory(blocker);
+    std::ofstream(blocker + "/keep") << "x";
+    const auto r = call({"run", dir.file("m.toml"), "--quiet"});
+    CHECK(r.status == 2);
+    CHECK(r.err.find(blocker + " is a folder in the way") != std::string::npos);
+    CHECK(!fs::exists(dir.file("m.h5")));
+    CHECK(fs::exists(blocker + "/keep"));  // left as it was
+    fs::remove_all(blocker);
+  }
+  REQUIRE(call({"run", dir.file("m.toml"), "--quiet"}).status == 0);
+  fs::create_directory(dir.file("q.html.partial"));
+  const auto report = call({"report", dir.file("m.h5"), "-o", dir.file("q.html")});
+  CHECK(report.status == 2);
+  CHECK(report.err.find(dir.file("q.html.partial") + " is a folder in the way") != std::string::npos);
+  CHECK(fs::is_directory(dir.file("q.html.partial")));
+  CHECK(!fs::exists(dir.file("q.html")));
+}
+
 TEST_CASE("report, audit and merge check -o before any work", "[cli][paths]") {
   ScratchDir dir("paths-o");
   std::ofstream(dir.file("s.toml")) << scenario("[output]\ncube = \"s.h5\"\ntables = \"\"\n");

@@ -317,10 +317,10 @@ def check_case(cube_path, html_path, expect_source, max_bins):
             for el in sec.iter(SV + "svg"):
                 if el.get("class") == "tradeoff":
                     counts["labels"] += check_tradeoff(el, methods, levels, float(levels[l]))
-        # Coverage panels: plot areas of at least 300 x 160 pixels, no wider than the page.
+        # Coverage panels: plot areas of at least 300 x 220 pixels, no wider than the page.
         for el in root.iter(SV + "svg"):
             if el.get("class") == "plot-area" and el.get("data-kind") == "coverage":
-                assert float(el.get("width")) >= 300 and float(el.get("height")) >= 160, el.attrib
+                assert float(el.get("width")) >= 300 and float(el.get("height")) >= 220, el.attrib
             if el.get("class") == "coverage-panels":
                 assert float(el.get("width")) <= 1120
 

@@ -163,7 +163,8 @@ Command add_intervals_command(CLI::App& app) {
   intervals->add_flag("--csv", a->csv, "CSV output with raw (unclipped) limits");
   intervals->footer(
       "Methods are grouped by what they promise: guaranteed coverage (exact tail inversion), "
-      "approximate, Bayesian. Each row draws the interval on [0, 1] against the observed share.");
+      "approximate, Bayesian. Each row draws the interval on [0, 1] against the observed share.\n\n" +
+      output::wrap_text(output::coverage_caution, 100));
   return {intervals, [a](std::ostream& out, std::ostream&) {
             return cmd_intervals(a->x, a->n, a->level, a->side, a->methods, a->csv, out);
           }};

@@ -48,6 +48,9 @@ int cmd_rank(const RankArgs& a, std::ostream& out) {
   }
   o.paired = !a.no_pairs;
   const output::CubeReader cube(a.cube);
+  // rank reads only the summaries, but a cube damaged anywhere is refused
+  // (exit 2, naming the dataset) rather than ranked.
+  cube.verify();
   const auto groups = output::rank_methods(cube, o);
   out << (a.format == "csv" ? output::rank_csv(cube, groups) : output::rank_text(cube, groups, o));
   return exit_ok;

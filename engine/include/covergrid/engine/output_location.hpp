@@ -9,7 +9,9 @@
 namespace covergrid::engine {
 
 /// Empty when `path` can be written (created or replaced by rename in its
-/// folder); otherwise what is wrong, with the system's reason, e.g.
+/// folder, with no folder at PATH.partial or PATH.journal, the names the
+/// writers use while they work); otherwise what is wrong, with the system's
+/// reason, e.g.
 /// "cannot create files in the folder out: Read-only file system" or
 /// "base.toml is a file, not a folder". Probes by creating and removing a
 /// uniquely named empty file in the folder; leaves nothing behind.
