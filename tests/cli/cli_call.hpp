@@ -24,6 +24,25 @@ inline CliResult call(const std::vector<std::string>& args) {
   return {status, out.str(), err.str()};
 }
 
+/// The fields of one CSV line ("..." quoting, no embedded newlines).
+inline std::vector<std::string> split_csv_line(const std::string& line) {
+  std::vector<std::string> fields;
+  std::string field;
+  bool quoted = false;
+  for (char ch : line) {
+    if (ch == '"') {
+      quoted = !quoted;
+    } else if (ch == ',' && !quoted) {
+      fields.push_back(field);
+      field.clear();
+    } else {
+      field += ch;
+    }
+  }
+  fields.push_back(field);
+  return fields;
+}
+
 inline std::string slurp(const std::filesystem::path& p) {
   std::ifstream in(p);
   return std::string(std::istreambuf_iterator<char>(in), {});

@@ -26,23 +26,7 @@ namespace {
 std::vector<std::vector<std::string>> csv_rows(const std::string& text) {
   std::vector<std::vector<std::string>> rows;
   std::stringstream lines(text);
-  for (std::string line; std::getline(lines, line);) {
-    std::vector<std::string> fields;
-    std::string field;
-    bool quoted = false;
-    for (char ch : line) {
-      if (ch == '"') {
-        quoted = !quoted;
-      } else if (ch == ',' && !quoted) {
-        fields.push_back(field);
-        field.clear();
-      } else {
-        field += ch;
-      }
-    }
-    fields.push_back(field);
-    rows.push_back(fields);
-  }
+  for (std::string line; std::getline(lines, line);) rows.push_back(covergrid::test::split_csv_line(line));
   return rows;
 }
 

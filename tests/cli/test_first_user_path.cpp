@@ -21,25 +21,9 @@ namespace fs = std::filesystem;
 using covergrid::test::call;
 using covergrid::test::ScratchDir;
 using covergrid::test::slurp;
+using covergrid::test::split_csv_line;
 
 namespace {
-
-std::vector<std::string> split_csv_line(const std::string& line) {
-  std::vector<std::string> fields;
-  std::string field;
-  bool quoted = false;
-  for (char ch : line) {
-    if (ch == '"')
-      quoted = !quoted;
-    else if (ch == ',' && !quoted) {
-      fields.push_back(field);
-      field.clear();
-    } else
-      field += ch;
-  }
-  fields.push_back(field);
-  return fields;
-}
 
 /// Field `name` of CSV row `row` (1 = first data row).
 std::string field(const std::string& csv, std::size_t row, const std::string& name) {
