@@ -1,6 +1,7 @@
 #include "covergrid/output/cube.hpp"
 
 #include "covergrid/engine/error.hpp"
+#include "covergrid/engine/sha256.hpp"
 #include "covergrid/methods/registry.hpp"
 #include "covergrid/version.hpp"
 
@@ -9,6 +10,7 @@
 #include <fcntl.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <cmath>
 #include <chrono>
@@ -641,6 +643,77 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
 
 // ---------------------------------------------------------------- reading
 
+namespace {
+
+/// Rounding slack of the value-range checks: sums of pmf terms may land a
+/// few units in the last place beyond [0, 1]; anything further is damage.
+constexpr double range_slack = 1e-9;
+
+/// The values a cube's number may take: [lo, hi] (within range_slack), or
+/// NaN (a method that lacks a side; a cell a shard does not hold), and
+/// whole numbers only when `integral`.
+struct ValueRange {
+  double lo, hi;
+  bool integral;
+};
+constexpr ValueRange probability{0, 1, false};
+
+/// Every /exact and /mc metric is a probability, a width of an interval in
+/// [0, 1] or its standard deviation, or a coverage standard error: [0, 1].
+/// The summaries too, but for the two coded ones.
+ValueRange stat_range(std::string_view stat) {
+  if (stat == "inf_coverage_from") return {-1, 1, true};
+  if (stat == "inf_refined") return {0, 1, true};
+  return probability;
+}
+
+bool in_range(double v, const ValueRange& r) {
+  if (std::isnan(v)) return true;
+  if (!(v >= r.lo - range_slack && v <= r.hi + range_slack)) return false;
+  return !r.integral || v == std::floor(v);
+}
+
+std::string range_text(const ValueRange& r) {
+  return r.integral ? fmt::format("the whole numbers {:g}..{:g} (or NaN)", r.lo, r.hi)
+                    : fmt::format("[{:g}, {:g}] (or NaN)", r.lo, r.hi);
+}
+
+enum class Kind { f64, i64, u8, text };
+
+const char* kind_name(Kind k) {
+  switch (k) {
+    case Kind::f64: return "float64";
+    case Kind::i64: return "int64";
+    case Kind::u8: return "uint8";
+    case Kind::text: return "strings";
+  }
+  return "?";
+}
+
+bool has_kind(hid_t type, Kind k) {
+  const H5T_class_t c = H5Tget_class(type);
+  const std::size_t size = H5Tget_size(type);
+  switch (k) {
+    case Kind::f64: return c == H5T_FLOAT && size == 8;
+    case Kind::i64: return c == H5T_INTEGER && size == 8 && H5Tget_sign(type) == H5T_SGN_2;
+    case Kind::u8: return c == H5T_INTEGER && size == 1 && H5Tget_sign(type) == H5T_SGN_NONE;
+    case Kind::text: return c == H5T_STRING;
+  }
+  return false;
+}
+
+/// The storage-chunk shape of a dataset (its whole shape when not chunked).
+std::vector<hsize_t> chunk_shape(hid_t dataset, const std::vector<hsize_t>& dims) {
+  Handle dcpl(check_id(H5Dget_create_plist(dataset), "get a dataset's creation list"), H5Pclose);
+  std::vector<hsize_t> chunk = dims;
+  if (H5Pget_layout(dcpl.get()) == H5D_CHUNKED)
+    check(H5Pget_chunk(dcpl.get(), static_cast<int>(dims.size()), chunk.data()), "get a chunk shape");
+  for (auto& c : chunk) c = std::max<hsize_t>(c, 1);
+  return chunk;
+}
+
+}  // namespace
+
 CubeReader::CubeReader(const std::string& path) : path_(path) {
   try {
     file_ = File::open(path, false);
@@ -661,31 +734,240 @@ CubeReader::CubeReader(const std::string& path) : path_(path) {
                       "that wrote it",
                       version, has_attr(root, "tool_version") ? get_attr_string(root, "tool_version") : "?",
                       cube_format_version));
-    complete_ = get_attr_int(root, "complete") != 0;
-    if (has_attr(root, "shard")) shard_ = get_attr_string(root, "shard");
-    // Every metric group holds the same axes; /summary is always there.
-    models = read_strings(root, "/summary/model");
-    sides = read_strings(root, "/summary/side");
-    levels = read_doubles(root, "/summary/level");
-    methods = read_strings(root, "/summary/method");
-    n = read_int64s(root, "/summary/n");
-    p = read_doubles(root, "/summary/p");
-    for (const auto& label : methods) {
-      Handle g = open_group(root, "/methods/" + label);
-      auto& info = method_info[label];
-      H5O_info_t oinfo;
-      check(H5Oget_info2(g.get(), &oinfo, H5O_INFO_NUM_ATTRS), "read method attributes");
-      for (hsize_t i = 0; i < oinfo.num_attrs; ++i) {
-        char name[256];
-        const ssize_t len =
-            H5Aget_name_by_idx(g.get(), ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT);
-        if (len < 0) throw CubeError("cannot read a method attribute name");
-        info[name] = get_attr_string(g.get(), name);
-      }
-    }
+    validate();
   } catch (const CubeError& e) {
     throw InputError(path, std::string("is damaged or incomplete as a cube: ") + e.what());
   }
+}
+
+/// The one place a cube's layout is checked (issue 11): everything a reader
+/// indexes by is proven here, so that no later read runs off a dataset.
+void CubeReader::validate() {
+  const hid_t root = file_.id();
+  auto bad = [&](const std::string& what) -> void { throw InputError(path_, "is damaged: " + what); };
+
+  // Root attributes: present, of their type, and in range.
+  auto attr_kind = [&](const std::string& name, Kind kind) {
+    if (!has_attr(root, name)) bad(fmt::format("the root attribute {} is missing", name));
+    Handle a(check_id(H5Aopen(root, name.c_str(), H5P_DEFAULT), "open attribute " + name), H5Aclose);
+    Handle t(check_id(H5Aget_type(a.get()), "get the type of attribute " + name), H5Tclose);
+    const bool ok = kind == Kind::text ? H5Tget_class(t.get()) == H5T_STRING
+                                       : H5Tget_class(t.get()) == H5T_INTEGER;
+    if (!ok) bad(fmt::format("the root attribute {} is not {}", name, kind == Kind::text ? "text" : "an integer"));
+  };
+  for (const char* name : {"tool_version", "title", "scenario", "scenario_sha256", "created_utc", "shard"})
+    attr_kind(name, Kind::text);
+  for (const char* name : {"seed", "complete"}) attr_kind(name, Kind::i64);
+  const std::int64_t complete = get_attr_int(root, "complete");
+  if (complete != 0 && complete != 1) bad(fmt::format("the root attribute complete is {}, not 0 or 1", complete));
+  complete_ = complete == 1;
+  if (get_attr_int(root, "seed") < 0) bad("the root attribute seed is negative");
+  shard_ = get_attr_string(root, "shard");
+  std::size_t shard_of = 0;
+  if (shard_ != "all") {
+    unsigned long k = 0, of = 0;
+    int used = 0;
+    if (std::sscanf(shard_.c_str(), "%lu/%lu%n", &k, &of, &used) != 2 ||
+        static_cast<std::size_t>(used) != shard_.size() || k < 1 || k > of)
+      bad(fmt::format("the root attribute shard is \"{}\", not \"all\" or K/N with 1 <= K <= N", shard_));
+    shard_of = of;
+  }
+  const std::string text = get_attr_string(root, "scenario");
+  if (text.empty()) bad("the root attribute scenario (the scenario text) is empty");
+  if (engine::sha256_hex(text) != get_attr_string(root, "scenario_sha256"))
+    bad("the root attribute scenario (the scenario text) does not match its scenario_sha256");
+
+  // Datasets: present, of their type; their shape.
+  auto dataset_shape = [&](const std::string& name, Kind kind) {
+    if (!exists(root, name.substr(1))) bad(fmt::format("dataset {} is missing", name));
+    Handle d = open_dataset(root, name);
+    Handle t(check_id(H5Dget_type(d.get()), "get the type of " + name), H5Tclose);
+    if (!has_kind(t.get(), kind)) bad(fmt::format("dataset {} does not hold {}", name, kind_name(kind)));
+    return shape(d.get());
+  };
+  auto axis_length = [&](const std::string& name, Kind kind) {
+    const auto dims = dataset_shape(name, kind);
+    if (dims.size() != 1 || dims[0] == 0) bad(fmt::format("dataset {} is not a non-empty 1-D axis", name));
+    return dims[0];
+  };
+
+  // The axes, from /summary (always there); their values.
+  for (std::size_t i = 0; i < axis_names.size(); ++i) {
+    const Kind k = (i == 2 || i == 5) ? Kind::f64 : (i == 4 ? Kind::i64 : Kind::text);
+    axis_length(std::string("/summary/") + axis_names[i], k);
+  }
+  models = read_strings(root, "/summary/model");
+  sides = read_strings(root, "/summary/side");
+  levels = read_doubles(root, "/summary/level");
+  methods = read_strings(root, "/summary/method");
+  n = read_int64s(root, "/summary/n");
+  p = read_doubles(root, "/summary/p");
+  auto labels_ok = [&](const std::vector<std::string>& v, const std::string& name) {
+    for (std::size_t i = 0; i < v.size(); ++i) {
+      if (v[i].empty()) bad(fmt::format("dataset {} has an empty label at index {}", name, i));
+      for (std::size_t j = 0; j < i; ++j)
+        if (v[j] == v[i]) bad(fmt::format("dataset {} lists \"{}\" twice", name, v[i]));
+    }
+  };
+  labels_ok(models, "/summary/model");
+  labels_ok(sides, "/summary/side");
+  labels_ok(methods, "/summary/method");
+  for (const auto& side : sides) {
+    methods::Side parsed;
+    if (!methods::parse_side(side, parsed))
+      bad(fmt::format("dataset /summary/side holds \"{}\", not a known side (two-sided, lower-bound, "
+                      "upper-bound)",
+                      side));
+  }
+  for (std::size_t i = 0; i < levels.size(); ++i)
+    if (!(levels[i] > 0 && levels[i] < 1) || (i > 0 && !(levels[i] > levels[i - 1])))
+      bad(fmt::format("dataset /summary/level holds {} at index {}: levels are increasing, in (0, 1)",
+                      levels[i], i));
+  for (std::size_t i = 0; i < p.size(); ++i)
+    if (!(p[i] >= 0 && p[i] <= 1) || (i > 0 && !(p[i] > p[i - 1])))
+      bad(fmt::format("dataset /summary/p holds {} at index {}: p is increasing, in [0, 1]", p[i], i));
+  for (std::size_t i = 0; i < n.size(); ++i)
+    if (n[i] < 1 || n[i] > 10'000'000 || (i > 0 && n[i] <= n[i - 1]))
+      bad(fmt::format("dataset /summary/n holds {} at index {}: n is increasing, in 1..10^7", n[i], i));
+
+  // The other metric groups' copies of the axes must equal /summary's (the
+  // string axes carry no checksum: HDF5 filters no variable-length data).
+  const bool ex = exists(root, "exact"), mc = exists(root, "mc");
+  if (!ex && !mc) bad("neither /exact nor /mc is present");
+  for (const std::string group : {"/exact/", "/mc/"}) {
+    if (!exists(root, group.substr(1, group.size() - 2))) continue;
+    auto differs = [&](const char* axis) {
+      bad(fmt::format("dataset {}{} differs from /summary/{} (the copies of an axis must agree)", group, axis,
+                      axis));
+    };
+    for (std::size_t i = 0; i < axis_names.size(); ++i) {
+      const std::string name = group + axis_names[i];
+      const Kind k = (i == 2 || i == 5) ? Kind::f64 : (i == 4 ? Kind::i64 : Kind::text);
+      axis_length(name, k);
+      if (k == Kind::text) {
+        const auto& mine = i == 0 ? models : i == 1 ? sides : methods;
+        if (read_strings(root, name) != mine) differs(axis_names[i]);
+      } else if (k == Kind::i64) {
+        if (read_int64s(root, name) != n) differs(axis_names[i]);
+      } else if (read_doubles(root, name) != (i == 2 ? levels : p)) {
+        differs(axis_names[i]);
+      }
+    }
+  }
+
+  // Methods: each label's group with its attributes (all text).
+  for (const auto& label : methods) {
+    if (!exists(root, "methods/" + label)) bad(fmt::format("group /methods/{} is missing", label));
+    Handle g = open_group(root, "/methods/" + label);
+    auto& info = method_info[label];
+    H5O_info_t oinfo;
+    check(H5Oget_info2(g.get(), &oinfo, H5O_INFO_NUM_ATTRS), "read method attributes");
+    for (hsize_t i = 0; i < oinfo.num_attrs; ++i) {
+      char name[256];
+      const ssize_t len =
+          H5Aget_name_by_idx(g.get(), ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT);
+      if (len < 0) throw CubeError("cannot read a method attribute name");
+      info[name] = get_attr_string(g.get(), name);
+    }
+    if (!info.count("id")) bad(fmt::format("group /methods/{} has no attribute id", label));
+  }
+
+  // Every dataset's type and shape against the axes.
+  const std::vector<hsize_t> dims = {models.size(), sides.size(), levels.size(), methods.size(), n.size(), p.size()};
+  const std::vector<hsize_t> sdims(dims.begin(), dims.end() - 1);
+  auto shape_text = [](const std::vector<hsize_t>& v) {
+    std::string out;
+    for (auto x : v) out += (out.empty() ? "" : " x ") + std::to_string(x);
+    return out;
+  };
+  auto expect_shape = [&](const std::string& name, Kind kind, const std::vector<hsize_t>& want) {
+    const auto got = dataset_shape(name, kind);
+    if (got != want)
+      bad(fmt::format("dataset {} has shape {}; its axes give {}", name, shape_text(got), shape_text(want)));
+  };
+  if (ex)
+    for (auto metric : engine::metric_names) expect_shape("/exact/" + std::string(metric), Kind::f64, dims);
+  if (mc) {
+    for (auto metric : engine::mc_metric_names) expect_shape("/mc/" + std::string(metric), Kind::f64, dims);
+    expect_shape("/mc/replicates", Kind::i64, {models.size(), n.size(), p.size()});
+  }
+  std::vector<std::string> stats;
+  if (ex)
+    for (auto stat : engine::stat_names) stats.emplace_back(stat);
+  if (mc)
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+      stats.push_back("mc_" + std::string(engine::stat_names[k]));
+  for (const auto& stat : stats) expect_shape("/summary/" + stat, Kind::f64, sdims);
+
+  // Progress: the chunk grid and which chunks are in.
+  if (!exists(root, "progress")) bad("group /progress is missing");
+  {
+    Handle pg = open_group(root, "/progress");
+    std::int64_t blk[2] = {0, 0};
+    const char* block_names[2] = {"n_block", "p_block"};
+    for (int i = 0; i < 2; ++i) {
+      if (!has_attr(pg.get(), block_names[i])) bad(fmt::format("/progress has no attribute {}", block_names[i]));
+      blk[i] = get_attr_int(pg.get(), block_names[i]);
+      if (blk[i] < 1) bad(fmt::format("the /progress attribute {} is {}, not >= 1", block_names[i], blk[i]));
+    }
+    auto blocks = [](std::size_t size, std::int64_t b) {
+      return (size + static_cast<std::size_t>(b) - 1) / static_cast<std::size_t>(b);
+    };
+    const std::size_t chunks = models.size() * blocks(n.size(), blk[0]) * blocks(p.size(), blk[1]);
+    expect_shape("/progress/done", Kind::u8, {chunks});
+    const auto done = read_u8s(root, "/progress/done");
+    for (std::size_t i = 0; i < done.size(); ++i)
+      if (done[i] > 1) bad(fmt::format("dataset /progress/done holds {} at index {}, not 0 or 1", done[i], i));
+    if (shard_ == "all") {
+      if (complete_ && std::find(done.begin(), done.end(), 0) != done.end())
+        bad("the cube is marked complete but dataset /progress/done lists chunks not computed");
+    } else {
+      if (shard_of > chunks)
+        bad(fmt::format("the root attribute shard is {} but the cube has only {} chunks", shard_, chunks));
+      const auto got = dataset_shape("/progress/shard_chunks", Kind::i64);
+      if (got.size() != 1) bad("dataset /progress/shard_chunks is not 1-D");
+      for (const auto id : read_int64s(root, "/progress/shard_chunks"))
+        if (id < 0 || static_cast<std::size_t>(id) >= chunks || (complete_ && !done[static_cast<std::size_t>(id)]))
+          bad(fmt::format("dataset /progress/shard_chunks lists chunk {}, not a computed chunk of 0..{}", id,
+                          chunks - 1));
+    }
+  }
+
+  // The values of the summaries (small) and of the replicate counts (one
+  // value per cell); the metrics are checked by verify(), chunk by chunk.
+  for (const auto& stat : stats) {
+    const std::string name = "/summary/" + stat;
+    const ValueRange range = stat_range(stat.rfind("mc_", 0) == 0 ? stat.substr(3) : stat);
+    const auto values = block(name, std::vector<hsize_t>(sdims.size(), 0), sdims);
+    for (std::size_t i = 0; i < values.size(); ++i)
+      if (!in_range(values[i], range))
+        bad(fmt::format("dataset {} holds {} at flat index {}, outside {}", name, values[i], i, range_text(range)));
+  }
+  if (mc) {
+    double limit = cube_replicates_limit;
+    Handle g = open_group(root, "/mc");
+    for (const char* a : {"replicates", "max_replicates"})
+      if (!has_attr(g.get(), a)) bad(fmt::format("/mc has no attribute {}", a));
+    const std::int64_t first = get_attr_int(g.get(), "replicates"), cap = get_attr_int(g.get(), "max_replicates");
+    if (first < 0 || static_cast<double>(first) > limit || cap < 0 || static_cast<double>(cap) > limit)
+      bad(fmt::format("the /mc attributes replicates = {}, max_replicates = {} are outside 0..{:g}", first, cap,
+                      limit));
+    limit = static_cast<double>(std::max(first, cap));
+    const auto reps = block("/mc/replicates", {0, 0, 0}, {models.size(), n.size(), p.size()});
+    for (std::size_t i = 0; i < reps.size(); ++i)
+      if (!(reps[i] >= 0 && reps[i] <= limit))
+        bad(fmt::format("dataset /mc/replicates holds {} at flat index {}, outside 0..{:g} (the cube's replicates "
+                        "and max_replicates)",
+                        reps[i], i, limit));
+  }
+}
+
+void CubeReader::require_whole() const {
+  if (is_shard())
+    throw InputError(path_, fmt::format("is shard {} of a scenario, not a whole cube; join the shards with "
+                                        "covergrid merge first",
+                                        shard_));
+  if (!complete_) throw InputError(path_, "is not complete (an unfinished run); finish the run first");
 }
 
 std::string CubeReader::attr(const std::string& name) const {
@@ -730,27 +1012,54 @@ std::size_t CubeReader::verify() const {
   } catch (const CubeError& e) {
     throw InputError(path_, std::string("is damaged: ") + e.what());
   }
+  // The /exact and /mc metrics (not their axes, not the replicate counts,
+  // which validate() checked) are read as doubles chunk by chunk and their
+  // values checked on the way; every other dataset is read chunk by chunk.
+  auto is_metric = [](const std::string& name) {
+    for (auto m : engine::mc_metric_names)  // a superset of the exact metric names
+      if (name == "/exact/" + std::string(m) || name == "/mc/" + std::string(m)) return true;
+    return false;
+  };
   for (const auto& name : names) try {
       Handle d = open_dataset(file_.id(), name);
-      read_every_chunk(d.get(), name);
+      if (!is_metric(name)) {
+        read_every_chunk(d.get(), name);
+        continue;
+      }
+      const auto dims = shape(d.get());
+      const auto chunk = chunk_shape(d.get(), dims);
+      const std::size_t rank = dims.size();
+      std::size_t per_chunk = 1;
+      for (auto c : chunk) per_chunk *= c;
+      std::vector<double> buf(per_chunk);
+      std::vector<hsize_t> start(rank, 0), count(rank);
+      for (bool more = rank > 0 && std::find(dims.begin(), dims.end(), 0) == dims.end(); more;) {
+        std::size_t size = 1;
+        for (std::size_t i = 0; i < rank; ++i) size *= count[i] = std::min(chunk[i], dims[i] - start[i]);
+        read_block(d.get(), start, count, buf.data());
+        for (std::size_t i = 0; i < size; ++i)
+          if (!in_range(buf[i], probability)) {
+            std::string at;
+            for (auto v : start) at += (at.empty() ? "" : ", ") + std::to_string(v);
+            throw InputError(path_, fmt::format("is damaged: dataset {} holds {} in the chunk at [{}], outside {}",
+                                                name, buf[i], at, range_text(probability)));
+          }
+        // Odometer over the chunk grid, last dimension fastest.
+        std::size_t i = rank;
+        more = false;
+        while (i > 0) {
+          --i;
+          start[i] += chunk[i];
+          if (start[i] < dims[i]) {
+            more = true;
+            break;
+          }
+          start[i] = 0;
+        }
+      }
     } catch (const CubeError& e) {
       refuse_damaged(path_, name, e);
     }
-  // The string axes carry no checksum (HDF5 filters no variable-length
-  // data): every metric group's copy must equal the one read from /summary.
-  for (const std::string group : {"/exact/", "/mc/"}) {
-    if (!exists(file_.id(), group.substr(1, group.size() - 2))) continue;
-    const std::pair<const char*, const std::vector<std::string>*> axes[] = {
-        {"model", &models}, {"side", &sides}, {"method", &methods}};
-    for (const auto& [axis, values] : axes) try {
-        if (read_strings(file_.id(), group + axis) != *values)
-          throw InputError(path_, fmt::format("is damaged: dataset {}{} differs from /summary/{} (the copies "
-                                              "of an axis must agree)",
-                                              group, axis, axis));
-      } catch (const CubeError& e) {
-        refuse_damaged(path_, group + axis, e);
-      }
-  }
   return names.size();
 }
 

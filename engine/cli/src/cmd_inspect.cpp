@@ -63,17 +63,19 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
   if (comma == std::string::npos || comma == 0 || comma + 1 == pair.size())
     throw InputError("--pair", "give two method labels separated by a comma, e.g. --pair wilson,wald");
   const std::string label_a = pair.substr(0, comma), label_b = pair.substr(comma + 1);
-  output::CubeReader cube(path);
-  if (!cube.complete()) throw InputError(path, "is not complete");
-  if (cube.is_shard())
-    throw InputError(path,
-                     "is shard " + cube.shard() + " of a scenario; merge the shards first (covergrid merge)");
+  output::CubeReader cube(path);  // validates the layout, the replicate counts among it
+  cube.require_whole();
   if (!cube.has_mc())
     throw InputError(path, "holds no Monte Carlo results (the scenario had replicates = 0)");
   const engine::Scenario s =
       scenarios::load_scenario_text(cube.attr("scenario"), path + " (its scenario)", "", false);
   if (s.sha256 != cube.attr("scenario_sha256"))
     throw InputError(path, "its stored scenario does not match its checksum");
+  // The loops below index the cube by the scenario's grid.
+  if (s.n != std::vector<int>(cube.n.begin(), cube.n.end()) || s.p != cube.p || s.levels != cube.levels ||
+      s.sides.size() != cube.sides.size() || s.methods.size() != cube.methods.size() ||
+      s.models.size() != cube.models.size())
+    throw InputError(path, "is damaged: its stored scenario's grid does not match its axes (/summary)");
   auto find = [&](const std::string& label) {
     for (std::size_t m = 0; m < s.methods.size(); ++m)
       if (s.methods[m].label == label) return m;
@@ -103,6 +105,10 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
           const auto stored_a = cube.mc_row("coverage", model, side, level, ia, ni);
           double sum = 0, lo = HUGE_VAL, hi = -HUGE_VAL, zmax = 0;
           for (std::size_t pi = 0; pi < s.p.size(); ++pi) {
+            // Bounded here too: the re-draw loops over every replicate.
+            if (!(reps[pi] >= 0 && reps[pi] <= output::cube_replicates_limit))
+              throw InputError(path, fmt::format("is damaged: dataset /mc/replicates holds {} at n = {}, p = {}",
+                                                 reps[pi], n, s.p[pi]));
             const auto c = engine::paired_difference(s.seed, model, n, pi, s.p[pi],
                                                      static_cast<std::uint64_t>(reps[pi]), ta, tb);
             if (c.coverage_a != stored_a[pi])

@@ -116,10 +116,18 @@ class CubeWriter final : public engine::ResultSink {
 /// storage chunk failing its checksum, or another HDF5 failure `e`.
 [[noreturn]] void refuse_damaged(const std::string& path, const std::string& dataset, const CubeError& e);
 
-/// A cube opened for reading; validates the format on open (InputError if the
-/// file is not a covergrid cube of a supported version). Every read verifies
-/// the checksums of the chunks it touches; a damaged chunk is an InputError
-/// naming the file and the dataset.
+/// The most Monte Carlo replicates a cube's cell may hold (the scenario
+/// loader's limit per cell, scenarios::max_replicates_per_cell).
+inline constexpr double cube_replicates_limit = 1e10;
+
+/// A cube opened for reading. The constructor validates the whole layout
+/// before anything uses it (validate(): the format and version, the root
+/// attributes, the scenario text against its SHA-256, every group's axes
+/// against each other and against every dataset's shape and type, the
+/// progress record, and the values of the axes, the summaries and the
+/// replicate counts): InputError (exit 2) naming the file and the dataset or
+/// attribute. Every read verifies the checksums of the chunks it touches; a
+/// damaged chunk is an InputError naming the file and the dataset.
 class CubeReader {
  public:
   explicit CubeReader(const std::string& path);
@@ -137,9 +145,14 @@ class CubeReader {
   /// Per method label: its attributes (id, name, family, reference, param.*).
   std::map<std::string, std::map<std::string, std::string>> method_info;
 
-  /// Reads every chunk of every dataset (verifying every checksum); returns
-  /// the number of datasets. InputError at the first damaged chunk.
+  /// Reads every chunk of every dataset (verifying every checksum, and the
+  /// value range of every /exact and /mc metric as its chunks are read);
+  /// returns the number of datasets. InputError at the first damaged chunk
+  /// or value out of range.
   std::size_t verify() const;
+  /// InputError unless the cube is complete and a whole cube (not a shard):
+  /// what rank, report and inspect --pair need.
+  void require_whole() const;
 
   bool has_exact() const;
   bool has_mc() const;
@@ -168,6 +181,7 @@ class CubeReader {
  private:
   std::vector<double> row(const std::string& dataset, std::size_t model, std::size_t side, std::size_t level,
                           std::size_t method, std::size_t n_index) const;
+  void validate();
   std::vector<double> block(const std::string& dataset, const std::vector<hsize_t>& start,
                             const std::vector<hsize_t>& count) const;
   std::string path_;
