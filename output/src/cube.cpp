@@ -682,10 +682,14 @@ enum class Kind { f64, i64, u8, text };
 
 const char* kind_name(Kind k) {
   switch (k) {
-    case Kind::f64: return "float64";
-    case Kind::i64: return "int64";
-    case Kind::u8: return "uint8";
-    case Kind::text: return "strings";
+    case Kind::f64:
+      return "float64";
+    case Kind::i64:
+      return "int64";
+    case Kind::u8:
+      return "uint8";
+    case Kind::text:
+      return "strings";
   }
   return "?";
 }
@@ -694,10 +698,14 @@ bool has_kind(hid_t type, Kind k) {
   const H5T_class_t c = H5Tget_class(type);
   const std::size_t size = H5Tget_size(type);
   switch (k) {
-    case Kind::f64: return c == H5T_FLOAT && size == 8;
-    case Kind::i64: return c == H5T_INTEGER && size == 8 && H5Tget_sign(type) == H5T_SGN_2;
-    case Kind::u8: return c == H5T_INTEGER && size == 1 && H5Tget_sign(type) == H5T_SGN_NONE;
-    case Kind::text: return c == H5T_STRING;
+    case Kind::f64:
+      return c == H5T_FLOAT && size == 8;
+    case Kind::i64:
+      return c == H5T_INTEGER && size == 8 && H5Tget_sign(type) == H5T_SGN_2;
+    case Kind::u8:
+      return c == H5T_INTEGER && size == 1 && H5Tget_sign(type) == H5T_SGN_NONE;
+    case Kind::text:
+      return c == H5T_STRING;
   }
   return false;
 }
@@ -751,15 +759,17 @@ void CubeReader::validate() {
     if (!has_attr(root, name)) bad(fmt::format("the root attribute {} is missing", name));
     Handle a(check_id(H5Aopen(root, name.c_str(), H5P_DEFAULT), "open attribute " + name), H5Aclose);
     Handle t(check_id(H5Aget_type(a.get()), "get the type of attribute " + name), H5Tclose);
-    const bool ok = kind == Kind::text ? H5Tget_class(t.get()) == H5T_STRING
-                                       : H5Tget_class(t.get()) == H5T_INTEGER;
-    if (!ok) bad(fmt::format("the root attribute {} is not {}", name, kind == Kind::text ? "text" : "an integer"));
+    const bool ok =
+        kind == Kind::text ? H5Tget_class(t.get()) == H5T_STRING : H5Tget_class(t.get()) == H5T_INTEGER;
+    if (!ok)
+      bad(fmt::format("the root attribute {} is not {}", name, kind == Kind::text ? "text" : "an integer"));
   };
   for (const char* name : {"tool_version", "title", "scenario", "scenario_sha256", "created_utc", "shard"})
     attr_kind(name, Kind::text);
   for (const char* name : {"seed", "complete"}) attr_kind(name, Kind::i64);
   const std::int64_t complete = get_attr_int(root, "complete");
-  if (complete != 0 && complete != 1) bad(fmt::format("the root attribute complete is {}, not 0 or 1", complete));
+  if (complete != 0 && complete != 1)
+    bad(fmt::format("the root attribute complete is {}, not 0 or 1", complete));
   complete_ = complete == 1;
   if (get_attr_int(root, "seed") < 0) bad("the root attribute seed is negative");
   shard_ = get_attr_string(root, "shard");
@@ -815,7 +825,8 @@ void CubeReader::validate() {
   for (const auto& side : sides) {
     methods::Side parsed;
     if (!methods::parse_side(side, parsed))
-      bad(fmt::format("dataset /summary/side holds \"{}\", not a known side (two-sided, lower-bound, "
+      bad(
+          fmt::format("dataset /summary/side holds \"{}\", not a known side (two-sided, lower-bound, "
                       "upper-bound)",
                       side));
   }
@@ -873,7 +884,8 @@ void CubeReader::validate() {
   }
 
   // Every dataset's type and shape against the axes.
-  const std::vector<hsize_t> dims = {models.size(), sides.size(), levels.size(), methods.size(), n.size(), p.size()};
+  const std::vector<hsize_t> dims = {models.size(),  sides.size(), levels.size(),
+                                     methods.size(), n.size(),     p.size()};
   const std::vector<hsize_t> sdims(dims.begin(), dims.end() - 1);
   auto shape_text = [](const std::vector<hsize_t>& v) {
     std::string out;
@@ -906,7 +918,8 @@ void CubeReader::validate() {
     std::int64_t blk[2] = {0, 0};
     const char* block_names[2] = {"n_block", "p_block"};
     for (int i = 0; i < 2; ++i) {
-      if (!has_attr(pg.get(), block_names[i])) bad(fmt::format("/progress has no attribute {}", block_names[i]));
+      if (!has_attr(pg.get(), block_names[i]))
+        bad(fmt::format("/progress has no attribute {}", block_names[i]));
       blk[i] = get_attr_int(pg.get(), block_names[i]);
       if (blk[i] < 1) bad(fmt::format("the /progress attribute {} is {}, not >= 1", block_names[i], blk[i]));
     }
@@ -917,7 +930,8 @@ void CubeReader::validate() {
     expect_shape("/progress/done", Kind::u8, {chunks});
     const auto done = read_u8s(root, "/progress/done");
     for (std::size_t i = 0; i < done.size(); ++i)
-      if (done[i] > 1) bad(fmt::format("dataset /progress/done holds {} at index {}, not 0 or 1", done[i], i));
+      if (done[i] > 1)
+        bad(fmt::format("dataset /progress/done holds {} at index {}, not 0 or 1", done[i], i));
     if (shard_ == "all") {
       if (complete_ && std::find(done.begin(), done.end(), 0) != done.end())
         bad("the cube is marked complete but dataset /progress/done lists chunks not computed");
@@ -927,7 +941,8 @@ void CubeReader::validate() {
       const auto got = dataset_shape("/progress/shard_chunks", Kind::i64);
       if (got.size() != 1) bad("dataset /progress/shard_chunks is not 1-D");
       for (const auto id : read_int64s(root, "/progress/shard_chunks"))
-        if (id < 0 || static_cast<std::size_t>(id) >= chunks || (complete_ && !done[static_cast<std::size_t>(id)]))
+        if (id < 0 || static_cast<std::size_t>(id) >= chunks ||
+            (complete_ && !done[static_cast<std::size_t>(id)]))
           bad(fmt::format("dataset /progress/shard_chunks lists chunk {}, not a computed chunk of 0..{}", id,
                           chunks - 1));
     }
@@ -941,24 +956,27 @@ void CubeReader::validate() {
     const auto values = block(name, std::vector<hsize_t>(sdims.size(), 0), sdims);
     for (std::size_t i = 0; i < values.size(); ++i)
       if (!in_range(values[i], range))
-        bad(fmt::format("dataset {} holds {} at flat index {}, outside {}", name, values[i], i, range_text(range)));
+        bad(fmt::format("dataset {} holds {} at flat index {}, outside {}", name, values[i], i,
+                        range_text(range)));
   }
   if (mc) {
     double limit = cube_replicates_limit;
     Handle g = open_group(root, "/mc");
     for (const char* a : {"replicates", "max_replicates"})
       if (!has_attr(g.get(), a)) bad(fmt::format("/mc has no attribute {}", a));
-    const std::int64_t first = get_attr_int(g.get(), "replicates"), cap = get_attr_int(g.get(), "max_replicates");
+    const std::int64_t first = get_attr_int(g.get(), "replicates"),
+                       cap = get_attr_int(g.get(), "max_replicates");
     if (first < 0 || static_cast<double>(first) > limit || cap < 0 || static_cast<double>(cap) > limit)
-      bad(fmt::format("the /mc attributes replicates = {}, max_replicates = {} are outside 0..{:g}", first, cap,
-                      limit));
+      bad(fmt::format("the /mc attributes replicates = {}, max_replicates = {} are outside 0..{:g}", first,
+                      cap, limit));
     limit = static_cast<double>(std::max(first, cap));
     const auto reps = block("/mc/replicates", {0, 0, 0}, {models.size(), n.size(), p.size()});
     for (std::size_t i = 0; i < reps.size(); ++i)
       if (!(reps[i] >= 0 && reps[i] <= limit))
-        bad(fmt::format("dataset /mc/replicates holds {} at flat index {}, outside 0..{:g} (the cube's replicates "
-                        "and max_replicates)",
-                        reps[i], i, limit));
+        bad(fmt::format(
+            "dataset /mc/replicates holds {} at flat index {}, outside 0..{:g} (the cube's replicates "
+            "and max_replicates)",
+            reps[i], i, limit));
   }
 }
 
@@ -1041,8 +1059,9 @@ std::size_t CubeReader::verify() const {
           if (!in_range(buf[i], probability)) {
             std::string at;
             for (auto v : start) at += (at.empty() ? "" : ", ") + std::to_string(v);
-            throw InputError(path_, fmt::format("is damaged: dataset {} holds {} in the chunk at [{}], outside {}",
-                                                name, buf[i], at, range_text(probability)));
+            throw InputError(
+                path_, fmt::format("is damaged: dataset {} holds {} in the chunk at [{}], outside {}", name,
+                                   buf[i], at, range_text(probability)));
           }
         // Odometer over the chunk grid, last dimension fastest.
         std::size_t i = rank;

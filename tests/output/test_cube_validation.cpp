@@ -80,7 +80,9 @@ void set_root(const std::string& path, const std::string& name, const std::strin
   o::set_attr(f.id(), name, value);
 }
 
-std::size_t lines(const std::string& s) { return static_cast<std::size_t>(std::count(s.begin(), s.end(), '\n')); }
+std::size_t lines(const std::string& s) {
+  return static_cast<std::size_t>(std::count(s.begin(), s.end(), '\n'));
+}
 
 /// Every reading command refuses `cube` with exit 2, one line naming the
 /// file and `names` (the dataset or attribute), no output, no report file.
@@ -121,10 +123,11 @@ struct Fixture {
 
 TEST_CASE("damaged cubes: the undamaged fixture is read by every command", "[output][validation]") {
   Fixture fx;
-  for (const auto& args : std::vector<std::vector<std::string>>{{"inspect", fx.good},
-                                                                 {"rank", fx.good},
-                                                                 {"report", fx.good, "-o", fx.good + ".html"},
-                                                                 {"inspect", fx.good, "--pair", "wilson,wald"}}) {
+  for (const auto& args :
+       std::vector<std::vector<std::string>>{{"inspect", fx.good},
+                                             {"rank", fx.good},
+                                             {"report", fx.good, "-o", fx.good + ".html"},
+                                             {"inspect", fx.good, "--pair", "wilson,wald"}}) {
     INFO(args[0]);
     const auto r = call(args);
     CHECK(r.status == 0);
@@ -137,49 +140,62 @@ TEST_CASE("damaged cubes: an n axis longer than the data is refused, not read pa
   std::vector<std::int64_t> long_n(100);
   for (std::size_t i = 0; i < long_n.size(); ++i) long_n[i] = static_cast<std::int64_t>(i) + 1;
   // Every group's copy resized: the metrics' shapes no longer match.
-  refused_by_all(fx.damaged("long-n", [&](const std::string& p) {
-    for (const auto& g : groups) replace(p, g + "/n", long_n);
-  }),
-                 "dataset /exact/coverage has shape 1 x 2 x 2 x 2 x 3 x 5; its axes give 1 x 2 x 2 x 2 x 100 x 5");
+  refused_by_all(
+      fx.damaged("long-n",
+                 [&](const std::string& p) {
+                   for (const auto& g : groups) replace(p, g + "/n", long_n);
+                 }),
+      "dataset /exact/coverage has shape 1 x 2 x 2 x 2 x 3 x 5; its axes give 1 x 2 x 2 x 2 x 100 x 5");
   // Only /summary's copy (the one the reader indexes by).
-  refused_by_all(fx.damaged("long-summary-n", [&](const std::string& p) { replace(p, "/summary/n", long_n); }),
-                 "dataset /exact/n differs from /summary/n");
+  refused_by_all(
+      fx.damaged("long-summary-n", [&](const std::string& p) { replace(p, "/summary/n", long_n); }),
+      "dataset /exact/n differs from /summary/n");
   // A shorter p axis, the same way.
-  refused_by_all(fx.damaged("short-p", [&](const std::string& p) {
-    for (const auto& g : groups) replace(p, g + "/p", std::vector<double>{0.1, 0.5});
-  }),
+  refused_by_all(fx.damaged("short-p",
+                            [&](const std::string& p) {
+                              for (const auto& g : groups)
+                                replace(p, g + "/p", std::vector<double>{0.1, 0.5});
+                            }),
                  "its axes give 1 x 2 x 2 x 2 x 3 x 2");
   // n held as float64 instead of int64.
-  refused_by_all(fx.damaged("float-n", [&](const std::string& p) {
-    replace(p, "/summary/n", std::vector<double>{3, 5, 8});
-  }),
+  refused_by_all(fx.damaged("float-n",
+                            [&](const std::string& p) {
+                              replace(p, "/summary/n", std::vector<double>{3, 5, 8});
+                            }),
                  "dataset /summary/n does not hold int64");
   // A summary missing.
-  refused_by_all(fx.damaged("no-mean-width", [&](const std::string& p) {
-    o::File f = o::File::open(p, true);
-    o::check(H5Ldelete(f.id(), "/summary/mean_width", H5P_DEFAULT), "delete");
-  }),
+  refused_by_all(fx.damaged("no-mean-width",
+                            [&](const std::string& p) {
+                              o::File f = o::File::open(p, true);
+                              o::check(H5Ldelete(f.id(), "/summary/mean_width", H5P_DEFAULT), "delete");
+                            }),
                  "dataset /summary/mean_width is missing");
 }
 
 TEST_CASE("damaged cubes: axis values out of range are refused", "[output][validation]") {
   Fixture fx;
   const double nan = std::numeric_limits<double>::quiet_NaN();
-  refused_by_all(fx.damaged("nan-p", [&](const std::string& p) {
-    for (const auto& g : groups) poke(p, g + "/p", nan, 2);
-  }),
+  refused_by_all(fx.damaged("nan-p",
+                            [&](const std::string& p) {
+                              for (const auto& g : groups) poke(p, g + "/p", nan, 2);
+                            }),
                  "dataset /summary/p holds nan at index 2");
-  refused_by_all(fx.damaged("level-1.5", [&](const std::string& p) {
-    for (const auto& g : groups) poke(p, g + "/level", 1.5, 1);
-  }),
+  refused_by_all(fx.damaged("level-1.5",
+                            [&](const std::string& p) {
+                              for (const auto& g : groups) poke(p, g + "/level", 1.5, 1);
+                            }),
                  "dataset /summary/level holds 1.5 at index 1");
-  refused_by_all(fx.damaged("n-zero", [&](const std::string& p) {
-    for (const auto& g : groups) replace(p, g + "/n", std::vector<std::int64_t>{0, 5, 8});
-  }),
+  refused_by_all(fx.damaged("n-zero",
+                            [&](const std::string& p) {
+                              for (const auto& g : groups)
+                                replace(p, g + "/n", std::vector<std::int64_t>{0, 5, 8});
+                            }),
                  "dataset /summary/n holds 0 at index 0");
-  refused_by_all(fx.damaged("side", [&](const std::string& p) {
-    for (const auto& g : groups) replace(p, g + "/side", std::vector<std::string>{"two-sided", "sideways"});
-  }),
+  refused_by_all(fx.damaged("side",
+                            [&](const std::string& p) {
+                              for (const auto& g : groups)
+                                replace(p, g + "/side", std::vector<std::string>{"two-sided", "sideways"});
+                            }),
                  "dataset /summary/side holds \"sideways\", not a known side");
 }
 
@@ -190,17 +206,21 @@ TEST_CASE("damaged cubes: metric and summary values out of range are refused", "
   // report); inspect --pair compares the re-drawn coverage bit for bit.
   refused_by_all(fx.damaged("coverage-2", [&](const std::string& p) { poke(p, "/exact/coverage", 2.0); }),
                  "dataset /exact/coverage holds 2 in the chunk at [0, 0, 0, 0, 0, 0], outside [0, 1]", false);
-  refused_by_all(fx.damaged("coverage-minus-inf", [&](const std::string& p) { poke(p, "/exact/coverage", -inf); }),
-                 "dataset /exact/coverage holds -inf", false);
+  refused_by_all(
+      fx.damaged("coverage-minus-inf", [&](const std::string& p) { poke(p, "/exact/coverage", -inf); }),
+      "dataset /exact/coverage holds -inf", false);
   refused_by_all(fx.damaged("mc-width", [&](const std::string& p) { poke(p, "/mc/width", 1.5, 3); }),
                  "dataset /mc/width holds 1.5", false);
   // The summaries, by every reader on opening.
-  refused_by_all(fx.damaged("min-coverage", [&](const std::string& p) { poke(p, "/summary/min_coverage", 2.0); }),
-                 "dataset /summary/min_coverage holds 2 at flat index 0");
-  refused_by_all(fx.damaged("mc-mean", [&](const std::string& p) { poke(p, "/summary/mc_mean_coverage", -inf); }),
-                 "dataset /summary/mc_mean_coverage holds -inf");
-  refused_by_all(fx.damaged("inf-from", [&](const std::string& p) { poke(p, "/summary/inf_coverage_from", 0.5); }),
-                 "dataset /summary/inf_coverage_from holds 0.5");
+  refused_by_all(
+      fx.damaged("min-coverage", [&](const std::string& p) { poke(p, "/summary/min_coverage", 2.0); }),
+      "dataset /summary/min_coverage holds 2 at flat index 0");
+  refused_by_all(
+      fx.damaged("mc-mean", [&](const std::string& p) { poke(p, "/summary/mc_mean_coverage", -inf); }),
+      "dataset /summary/mc_mean_coverage holds -inf");
+  refused_by_all(
+      fx.damaged("inf-from", [&](const std::string& p) { poke(p, "/summary/inf_coverage_from", 0.5); }),
+      "dataset /summary/inf_coverage_from holds 0.5");
 }
 
 TEST_CASE("damaged cubes: replicate counts of -1 or 1e18 are refused, inspect --pair does not hang",
@@ -208,32 +228,37 @@ TEST_CASE("damaged cubes: replicate counts of -1 or 1e18 are refused, inspect --
   Fixture fx;
   for (const std::int64_t bad : {std::int64_t{-1}, std::int64_t{1'000'000'000'000'000'000}}) {
     INFO(bad);
-    refused_by_all(fx.damaged("replicates", [&](const std::string& p) { poke_i64(p, "/mc/replicates", bad); }),
-                   "dataset /mc/replicates holds " + fmt::format("{}", static_cast<double>(bad)));
+    refused_by_all(
+        fx.damaged("replicates", [&](const std::string& p) { poke_i64(p, "/mc/replicates", bad); }),
+        "dataset /mc/replicates holds " + fmt::format("{}", static_cast<double>(bad)));
   }
 }
 
-TEST_CASE("damaged cubes: a garbage scenario text or a wrong scenario_sha256 is refused", "[output][validation]") {
+TEST_CASE("damaged cubes: a garbage scenario text or a wrong scenario_sha256 is refused",
+          "[output][validation]") {
   Fixture fx;
-  refused_by_all(fx.damaged("garbage-scenario", [&](const std::string& p) { set_root(p, "scenario", "\x01 ]]["); }),
-                 "the root attribute scenario (the scenario text) does not match its scenario_sha256");
-  refused_by_all(fx.damaged("wrong-sha", [&](const std::string& p) {
-    set_root(p, "scenario_sha256", std::string(64, '0'));
-  }),
-                 "does not match its scenario_sha256");
-  refused_by_all(fx.damaged("no-seed", [&](const std::string& p) {
-    o::File f = o::File::open(p, true);
-    o::check(H5Adelete(f.id(), "seed"), "delete seed");
-  }),
+  refused_by_all(
+      fx.damaged("garbage-scenario", [&](const std::string& p) { set_root(p, "scenario", "\x01 ]]["); }),
+      "the root attribute scenario (the scenario text) does not match its scenario_sha256");
+  refused_by_all(
+      fx.damaged("wrong-sha",
+                 [&](const std::string& p) { set_root(p, "scenario_sha256", std::string(64, '0')); }),
+      "does not match its scenario_sha256");
+  refused_by_all(fx.damaged("no-seed",
+                            [&](const std::string& p) {
+                              o::File f = o::File::open(p, true);
+                              o::check(H5Adelete(f.id(), "seed"), "delete seed");
+                            }),
                  "the root attribute seed is missing");
   refused_by_all(fx.damaged("shard-text", [&](const std::string& p) { set_root(p, "shard", "3/2"); }),
                  "the root attribute shard is \"3/2\"");
-  refused_by_all(fx.damaged("done", [&](const std::string& p) {
-    o::File f = o::File::open(p, true);
-    o::Handle d = o::open_dataset(f.id(), "/progress/done");
-    const std::uint8_t zero = 0;
-    o::write_block_u8(d.get(), {0}, {1}, &zero);
-  }),
+  refused_by_all(fx.damaged("done",
+                            [&](const std::string& p) {
+                              o::File f = o::File::open(p, true);
+                              o::Handle d = o::open_dataset(f.id(), "/progress/done");
+                              const std::uint8_t zero = 0;
+                              o::write_block_u8(d.get(), {0}, {1}, &zero);
+                            }),
                  "dataset /progress/done lists chunks not computed");
 }
 
@@ -259,7 +284,8 @@ tables = ""
   REQUIRE(fs::exists(shard));
   CHECK(call({"inspect", shard}).status == 0);  // inspect describes a shard
   const std::string html = dir.file("s.html");
-  for (const auto& args : std::vector<std::vector<std::string>>{{"rank", shard}, {"report", shard, "-o", html}}) {
+  for (const auto& args :
+       std::vector<std::vector<std::string>>{{"rank", shard}, {"report", shard, "-o", html}}) {
     INFO(args[0]);
     const auto r = call(args);
     CHECK(r.status == 2);

@@ -107,8 +107,9 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
           for (std::size_t pi = 0; pi < s.p.size(); ++pi) {
             // Bounded here too: the re-draw loops over every replicate.
             if (!(reps[pi] >= 0 && reps[pi] <= output::cube_replicates_limit))
-              throw InputError(path, fmt::format("is damaged: dataset /mc/replicates holds {} at n = {}, p = {}",
-                                                 reps[pi], n, s.p[pi]));
+              throw InputError(
+                  path, fmt::format("is damaged: dataset /mc/replicates holds {} at n = {}, p = {}", reps[pi],
+                                    n, s.p[pi]));
             const auto c = engine::paired_difference(s.seed, model, n, pi, s.p[pi],
                                                      static_cast<std::uint64_t>(reps[pi]), ta, tb);
             if (c.coverage_a != stored_a[pi])

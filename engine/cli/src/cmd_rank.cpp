@@ -48,7 +48,7 @@ int cmd_rank(const RankArgs& a, std::ostream& out) {
   }
   o.paired = !a.no_pairs;
   const output::CubeReader cube(a.cube);  // validates the layout (exit 2 naming the dataset)
-  cube.require_whole();                    // a shard or an unfinished run has partial summaries
+  cube.require_whole();                   // a shard or an unfinished run has partial summaries
   // rank reads only the summaries, but a cube damaged anywhere is refused
   // (exit 2, naming the dataset) rather than ranked.
   cube.verify();

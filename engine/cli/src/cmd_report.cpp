@@ -32,8 +32,8 @@ int cmd_report(const ReportArgs& a, std::ostream& out) {
   if (const std::string problem = engine::output_location_problem(target); !problem.empty())
     throw InputError(a.html.empty() ? target : "-o " + target, problem);
   const output::CubeReader cube(a.cube);  // validates the layout (exit 2 naming the dataset)
-  cube.require_whole();                    // a shard or an unfinished run would draw NaN
-  cube.verify();  // every chunk's checksum, also of datasets the page does not draw
+  cube.require_whole();                   // a shard or an unfinished run would draw NaN
+  cube.verify();                          // every chunk's checksum, also of datasets the page does not draw
   output::ReportOptions options;
   options.n = a.n;
   options.max_bins = static_cast<std::size_t>(a.max_bins);
