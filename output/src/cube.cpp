@@ -196,7 +196,8 @@ void write_all(int fd, const char* data, std::size_t size, std::uint64_t offset,
     const ssize_t k = ::pwrite(fd, data, size, static_cast<off_t>(offset));
     if (k < 0) {
       if (errno == EINTR) continue;
-      if (out_of_space_errno(errno)) throw OutOfSpace(fmt::format("cannot write {}: {}", path, out_of_space_text));
+      if (out_of_space_errno(errno))
+        throw OutOfSpace(fmt::format("cannot write {}: {}", path, out_of_space_text));
       throw CubeError(fmt::format("cannot write {}: {}", path, std::strerror(errno)));
     }
     data += k;
@@ -230,7 +231,10 @@ struct JournalHeader {
 /// the version; computed with that field zero.
 std::uint32_t header_checksum(std::string bytes) {
   std::memset(bytes.data() + 12, 0, 4);
-  return static_cast<std::uint32_t>(checksum(bytes.data(), bytes.size()));
+  // Folded: the low half of a product depends only on the low halves of its
+  // factors, so the low 32 bits alone would miss changes in a word's high half.
+  const std::uint64_t h = checksum(bytes.data(), bytes.size());
+  return static_cast<std::uint32_t>(h ^ (h >> 32));
 }
 
 std::string header_bytes(const engine::Scenario& s, const engine::Plan& plan) {
@@ -409,7 +413,8 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
       } catch (const CubeError&) {
         return fmt::format("a record of chunk {} whose contents are cut short", id);
       }
-      if (!chunk_fits(r, scenario)) return fmt::format("a record of chunk {} that does not fit that chunk", id);
+      if (!chunk_fits(r, scenario))
+        return fmt::format("a record of chunk {} that does not fit that chunk", id);
       return "";
     };
     std::uint64_t at = journal_header_size;
@@ -579,17 +584,18 @@ void CubeWriter::write_grid_stats(engine::Source source, std::size_t model, std:
   std::size_t saved = 0;
   for (const auto o : offsets_) saved += o >= 0 ? 1 : 0;
   const std::size_t total = shard_ ? shard_->chunks.size() : offsets_.size();
-  throw InputError(path, fmt::format("cannot write{}: {}; {} of {} chunks are saved in {}: free space and run "
-                                     "the same command to resume",
-                                     doing, out_of_space_text, saved, total, journal_path_));
+  throw InputError(path,
+                   fmt::format("cannot write{}: {}; {} of {} chunks are saved in {}: free space and run "
+                               "the same command to resume",
+                               doing, out_of_space_text, saved, total, journal_path_));
 }
 
 void CubeWriter::finish() {
   // A failed assembly leaves no .partial behind; the journal stays, so that
   // the same command assembles the cube again once the cause is gone.
   try {
-    assemble_cube(temp_path_,
-                  {scenario_, plan_, shard_, [this](std::size_t id) { return read_record(id); }, split_stats_});
+    assemble_cube(temp_path_, {scenario_, plan_, shard_, [this](std::size_t id) { return read_record(id); },
+                               split_stats_});
   } catch (const OutOfSpace&) {
     std::error_code ec;
     fs::remove(temp_path_, ec);
