@@ -8,6 +8,7 @@
 #include <fmt/format.h>
 
 #include <fcntl.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -74,6 +75,12 @@ constexpr std::uint32_t record_magic = 0x31484B43;  // "CKH1"
 constexpr std::size_t journal_header_size = 8 + 4 + 4 + 64 + 8 * 4;
 constexpr std::size_t record_header_size = 4 + 4 + 8 + 8 + 8;
 
+/// Journal format versions: 1 checksums each record's payload only and its
+/// header not at all; 2 (written now) also covers a record's chunk id and
+/// size and the header itself, so a flipped byte there is seen as damage
+/// rather than read as another chunk or another scenario. Both are read.
+constexpr std::uint32_t journal_version = 2;
+
 /// Word-wise FNV-1a style checksum of a record's payload (catches torn and
 /// stale records; not a cryptographic hash).
 std::uint64_t checksum(const char* data, std::size_t size) {
@@ -85,6 +92,17 @@ std::uint64_t checksum(const char* data, std::size_t size) {
     h = (h ^ w) * 0x100000001b3ull;
   }
   for (; i < size; ++i) h = (h ^ static_cast<unsigned char>(data[i])) * 0x100000001b3ull;
+  return h;
+}
+
+/// A record's checksum: the payload's, and from version 2 on also its chunk
+/// id and size.
+std::uint64_t record_checksum(std::uint32_t version, std::uint64_t id, const char* data, std::size_t size) {
+  std::uint64_t h = checksum(data, size);
+  if (version >= 2) {
+    h = (h ^ id) * 0x100000001b3ull;
+    h = (h ^ static_cast<std::uint64_t>(size)) * 0x100000001b3ull;
+  }
   return h;
 }
 
@@ -179,6 +197,8 @@ void write_all(int fd, const char* data, std::size_t size, std::uint64_t offset,
     const ssize_t k = ::pwrite(fd, data, size, static_cast<off_t>(offset));
     if (k < 0) {
       if (errno == EINTR) continue;
+      if (out_of_space_errno(errno))
+        throw OutOfSpace(fmt::format("cannot write {}: {}", path, out_of_space_text));
       throw CubeError(fmt::format("cannot write {}: {}", path, std::strerror(errno)));
     }
     data += k;
@@ -201,12 +221,26 @@ bool read_at(int fd, char* data, std::size_t size, std::uint64_t offset) {
 
 struct JournalHeader {
   std::string sha;
+  std::uint32_t version = 0;
   std::uint64_t n_block = 0, p_block = 0, chunks = 0, combos = 0;
+  /// Why the header cannot be trusted ("" when it can): the file starts as a
+  /// journal of ours but the rest of its header is damaged.
+  std::string damage;
 };
+
+/// The header's own checksum (version 2), stored in its 32-bit field after
+/// the version; computed with that field zero.
+std::uint32_t header_checksum(std::string bytes) {
+  std::memset(bytes.data() + 12, 0, 4);
+  // Folded: the low half of a product depends only on the low halves of its
+  // factors, so the low 32 bits alone would miss changes in a word's high half.
+  const std::uint64_t h = checksum(bytes.data(), bytes.size());
+  return static_cast<std::uint32_t>(h ^ (h >> 32));
+}
 
 std::string header_bytes(const engine::Scenario& s, const engine::Plan& plan) {
   std::string out(journal_magic, 8);
-  put(out, std::uint32_t{1});
+  put(out, journal_version);
   put(out, std::uint32_t{0});
   std::string sha = s.sha256;
   sha.resize(64, ' ');
@@ -215,24 +249,44 @@ std::string header_bytes(const engine::Scenario& s, const engine::Plan& plan) {
   put(out, static_cast<std::uint64_t>(plan.p_block));
   put(out, static_cast<std::uint64_t>(plan.chunks.size()));
   put(out, static_cast<std::uint64_t>(engine::combo_count(s)));
+  const std::uint32_t sum = header_checksum(out);
+  std::memcpy(out.data() + 12, &sum, 4);
   return out;
 }
 
-/// Reads a journal's header; nullopt if the file is not a journal of ours.
+/// Reads a journal's header; nullopt if the file is not a journal of ours
+/// (it does not start with the journal mark). A header that starts as ours
+/// but is short, of an unknown version, or fails its checksum comes back
+/// with `damage` set.
 std::optional<JournalHeader> read_journal_header(const std::string& path) {
   const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
   if (fd < 0) return std::nullopt;
   char buf[journal_header_size];
-  const bool ok = read_at(fd, buf, sizeof buf, 0);
+  std::memset(buf, 0, sizeof buf);
+  const ssize_t got = ::pread(fd, buf, sizeof buf, 0);
   ::close(fd);
-  if (!ok || std::memcmp(buf, journal_magic, 8) != 0) return std::nullopt;
+  if (got < 8 || std::memcmp(buf, journal_magic, 8) != 0) return std::nullopt;
   JournalHeader h;
+  if (static_cast<std::size_t>(got) < sizeof buf) {
+    h.damage = fmt::format("its header is cut short ({} of {} bytes)", got, sizeof buf);
+    return h;
+  }
+  Reader rest(buf + 8, sizeof buf - 8);
+  h.version = rest.get<std::uint32_t>();
+  const auto sum = rest.get<std::uint32_t>();
   h.sha.assign(buf + 16, 64);
-  Reader rest(buf + 80, sizeof buf - 80);
-  h.n_block = rest.get<std::uint64_t>();
-  h.p_block = rest.get<std::uint64_t>();
-  h.chunks = rest.get<std::uint64_t>();
-  h.combos = rest.get<std::uint64_t>();
+  Reader blocks(buf + 80, sizeof buf - 80);
+  h.n_block = blocks.get<std::uint64_t>();
+  h.p_block = blocks.get<std::uint64_t>();
+  h.chunks = blocks.get<std::uint64_t>();
+  h.combos = blocks.get<std::uint64_t>();
+  if (h.version != 1 && h.version != journal_version)
+    h.damage = fmt::format("its header gives format version {} (this covergrid writes {})", h.version,
+                           journal_version);
+  else if (h.version >= 2 && header_checksum(std::string(buf, sizeof buf)) != sum)
+    h.damage = "its header fails its checksum";
+  else if (h.sha.find_first_not_of("0123456789abcdef") != std::string::npos)
+    h.damage = "its header holds no valid scenario checksum";
   return h;
 }
 
@@ -260,6 +314,9 @@ OutputState inspect_output(const engine::Scenario& scenario, bool overwrite, con
     const auto h = read_journal_header(journal);
     if (!h)
       throw InputError(journal, "exists and is not a covergrid journal; not touching it (use --overwrite)");
+    if (!h->damage.empty())
+      throw InputError(journal, "is a damaged journal: " + h->damage +
+                                    "; its chunks cannot be trusted: use --overwrite to start the run again");
     if (h->sha != scenario.sha256)
       throw InputError(journal,
                        "is an unfinished run of a different scenario; use --overwrite to discard it");
@@ -267,6 +324,32 @@ OutputState inspect_output(const engine::Scenario& scenario, bool overwrite, con
   }
   return OutputState::fresh;
 }
+
+namespace {
+
+/// Whether a decoded chunk holds what a run computes for its chunk (the parts
+/// present and every vector's length; see compute_with_tables in
+/// engine/src/run.cpp): a record that passes its checksum but does not fit
+/// is damage, and would otherwise be read past its end by assemble_cube.
+bool chunk_fits(const engine::ChunkResult& r, const engine::Scenario& s) {
+  const engine::ChunkSpec& c = r.spec;
+  const std::size_t combos = engine::combo_count(s), cells = c.n_count * c.p_count;
+  const bool whole_rows = c.p_begin == 0 && c.p_count == s.p.size();
+  const bool mc = s.replicates > 0;
+  if (r.has_exact != s.exact || r.has_mc != mc || r.has_row_stats != (s.exact && c.p_begin == 0) ||
+      r.has_grid_stats != (s.exact && whole_rows) || r.has_mc_grid_stats != (mc && whole_rows))
+    return false;
+  auto all = [](const auto& vectors, std::size_t size) {
+    return std::all_of(vectors.begin(), vectors.end(), [&](const auto& v) { return v.size() == size; });
+  };
+  return (!r.has_exact || all(r.exact, combos * cells)) &&
+         (!r.has_row_stats || all(r.row_stats, combos * c.n_count)) &&
+         (!r.has_grid_stats || all(r.grid_stats, combos * c.n_count)) &&
+         (!r.has_mc || (all(r.mc, combos * cells) && r.mc_replicates.size() == cells)) &&
+         (!r.has_mc_grid_stats || all(r.mc_grid_stats, combos * c.n_count));
+}
+
+}  // namespace
 
 CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& plan, bool resume,
                        const engine::ShardSelection* shard)
@@ -288,29 +371,117 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
         h->combos != engine::combo_count(scenario))
       throw InputError(journal_path_,
                        "was written with a different chunk layout; use --overwrite to start over");
+    version_ = h->version;
     fd_ = ::open(journal_path_.c_str(), O_RDWR | O_CLOEXEC);
     if (fd_ < 0) throw CubeError(fmt::format("cannot open {}: {}", journal_path_, std::strerror(errno)));
-    // Walk the records; the first that is short, unknown or fails its
-    // checksum marks the end (a run killed mid-write), and is cut off.
-    std::uint64_t at = journal_header_size;
+    struct stat st {};
+    if (::fstat(fd_, &st) != 0)
+      throw CubeError(fmt::format("cannot read the size of {}: {}", journal_path_, std::strerror(errno)));
+    const std::uint64_t file_end = static_cast<std::uint64_t>(st.st_size);
+    // Walk the records. One that is cut short, unknown, larger than what is
+    // left of the file, fails its checksum or does not fit its chunk is
+    // damage (a run killed mid-write leaves such a torn last record; a
+    // changed byte, one anywhere): the walk skips to the next valid record,
+    // so that nothing after the damage is lost, and says what it dropped.
     std::vector<char> buf;
-    for (;;) {
+    // "" when a valid record starts at `at` (its id and size set), else why not.
+    auto check_record = [&](std::uint64_t at, std::uint64_t& id, std::uint64_t& size) -> std::string {
+      if (file_end - at < record_header_size) return "an incomplete record header";
       char head[record_header_size];
-      if (!read_at(fd_, head, sizeof head, at)) break;
+      if (!read_at(fd_, head, sizeof head, at)) return "an unreadable record header";
       Reader in(head, sizeof head);
       const auto magic = in.get<std::uint32_t>();
       in.get<std::uint32_t>();
-      const auto id = in.get<std::uint64_t>();
-      const auto size = in.get<std::uint64_t>();
+      id = in.get<std::uint64_t>();
+      size = in.get<std::uint64_t>();
       const auto sum = in.get<std::uint64_t>();
-      if (magic != record_magic || id >= plan.chunks.size() || size > (std::uint64_t{1} << 40)) break;
+      if (magic != record_magic) return "a damaged record header (no record mark)";
+      const std::uint64_t left = file_end - at - record_header_size;
+      if (size > left)
+        return fmt::format("a record of {} bytes with only {} left in the file (torn)", size, left);
+      if (id >= plan.chunks.size())
+        return fmt::format("a record of chunk {}, which this scenario's {} chunks do not have", id,
+                           plan.chunks.size());
       buf.resize(size);
-      if (!read_at(fd_, buf.data(), size, at + record_header_size)) break;
-      if (checksum(buf.data(), size) != sum) break;
-      offsets_[id] = static_cast<std::int64_t>(at);
-      at += record_header_size + size;
+      if (!read_at(fd_, buf.data(), size, at + record_header_size)) return "an unreadable record";
+      if (record_checksum(version_, id, buf.data(), size) != sum)
+        return fmt::format("a record of chunk {} that fails its checksum", id);
+      engine::ChunkResult r;
+      r.spec = plan.chunks[id];
+      r.combos = engine::combo_count(scenario);
+      try {
+        decode_chunk(buf.data(), size, r);
+      } catch (const CubeError&) {
+        return fmt::format("a record of chunk {} whose contents are cut short", id);
+      }
+      if (!chunk_fits(r, scenario))
+        return fmt::format("a record of chunk {} that does not fit that chunk", id);
+      return "";
+    };
+    std::uint64_t at = journal_header_size;
+    std::size_t dropped = 0, regions = 0;
+    std::string first_reason;
+    std::uint64_t first_at = 0;
+    while (at < file_end) {
+      std::uint64_t id = 0, size = 0;
+      std::string reason = check_record(at, id, size);
+      if (reason.empty()) {
+        offsets_[id] = static_cast<std::int64_t>(at);
+        at += record_header_size + size;
+        continue;
+      }
+      // Damage at `at`: look for the next valid record after it, counting
+      // the record marks passed on the way (each the start of a lost record).
+      if (regions++ == 0) {
+        first_reason = reason;
+        first_at = at;
+      }
+      ++dropped;
+      std::uint64_t next = file_end;
+      for (std::uint64_t q = at + 1; q + record_header_size <= file_end;) {
+        const std::size_t window = static_cast<std::size_t>(std::min<std::uint64_t>(1 << 20, file_end - q));
+        std::vector<char> scan(window);
+        if (!read_at(fd_, scan.data(), window, q)) break;
+        bool found = false;
+        for (std::size_t k = 0; k + 4 <= window; ++k) {
+          std::uint32_t m;
+          std::memcpy(&m, scan.data() + k, 4);
+          if (m != record_magic) continue;
+          std::uint64_t id2 = 0, size2 = 0;
+          if (check_record(q + k, id2, size2).empty()) {
+            next = q + k;
+            found = true;
+            break;
+          }
+          ++dropped;
+        }
+        if (found || window < 4) break;
+        q += window - 3;  // a mark may straddle two windows
+      }
+      at = next;
+      if (next == file_end) break;
     }
-    end_ = at;
+    std::uint64_t valid_end = journal_header_size;
+    for (const auto o : offsets_)
+      if (o >= 0) {
+        char head[record_header_size];
+        if (read_at(fd_, head, sizeof head, static_cast<std::uint64_t>(o))) {
+          std::uint64_t size;
+          std::memcpy(&size, head + 16, 8);
+          valid_end = std::max(valid_end, static_cast<std::uint64_t>(o) + record_header_size + size);
+        }
+      }
+    end_ = valid_end;
+    if (dropped > 0) {
+      std::size_t kept = 0;
+      for (const auto o : offsets_) kept += o >= 0 ? 1 : 0;
+      resume_note_ = fmt::format(
+          "{}: dropped {} damaged record{} ({} chunk{} to compute again): at byte {}, {}{}; {} chunk{} "
+          "kept",
+          journal_path_, dropped, dropped == 1 ? "" : "s", dropped, dropped == 1 ? "" : "s", first_at,
+          first_reason, regions > 1 ? fmt::format(", and {} more damaged places", regions - 1) : "", kept,
+          kept == 1 ? "" : "s");
+    }
     if (::ftruncate(fd_, static_cast<off_t>(end_)) != 0)
       throw CubeError(fmt::format("cannot trim {}: {}", journal_path_, std::strerror(errno)));
   } else {
@@ -318,7 +489,11 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
     fs::remove(temp_path_, ec);
     fd_ = ::open(journal_path_.c_str(), O_RDWR | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
     if (fd_ < 0) throw CubeError(fmt::format("cannot create {}: {}", journal_path_, std::strerror(errno)));
-    write_all(fd_, header.data(), header.size(), 0, journal_path_);
+    try {
+      write_all(fd_, header.data(), header.size(), 0, journal_path_);
+    } catch (const OutOfSpace&) {
+      refuse_out_of_space(journal_path_, "");
+    }
     end_ = header.size();
   }
 }
@@ -343,9 +518,14 @@ void CubeWriter::write_encoded(std::size_t chunk, const std::string& payload) {
   put(record, std::uint32_t{0});
   put(record, static_cast<std::uint64_t>(chunk));
   put(record, static_cast<std::uint64_t>(payload.size()));
-  put(record, checksum(payload.data(), payload.size()));
+  put(record, record_checksum(version_, chunk, payload.data(), payload.size()));
   record += payload;
-  write_all(fd_, record.data(), record.size(), end_, journal_path_);
+  try {
+    write_all(fd_, record.data(), record.size(), end_, journal_path_);
+  } catch (const OutOfSpace&) {
+    // What was written of this record is a torn tail, which a resume drops.
+    refuse_out_of_space(journal_path_, "");
+  }
   offsets_[chunk] = static_cast<std::int64_t>(end_);
   end_ += record.size();
 }
@@ -354,8 +534,10 @@ void CubeWriter::checkpoint() {
   // Each record is handed to the kernel by write() as it is made, so a killed
   // process loses nothing written; fdatasync makes it survive a crash of the
   // machine too.
-  if (::fdatasync(fd_) != 0 && errno != EINVAL)
+  if (::fdatasync(fd_) != 0 && errno != EINVAL) {
+    if (out_of_space_errno(errno)) refuse_out_of_space(journal_path_, "");
     throw CubeError(fmt::format("cannot sync {}: {}", journal_path_, std::strerror(errno)));
+  }
 }
 
 engine::ChunkResult CubeWriter::read_record(std::size_t chunk) const {
@@ -399,9 +581,31 @@ void CubeWriter::write_grid_stats(engine::Source source, std::size_t model, std:
   (void)n_count;
 }
 
+[[noreturn]] void CubeWriter::refuse_out_of_space(const std::string& path, const std::string& doing) const {
+  std::size_t saved = 0;
+  for (const auto o : offsets_) saved += o >= 0 ? 1 : 0;
+  const std::size_t total = shard_ ? shard_->chunks.size() : offsets_.size();
+  throw InputError(path,
+                   fmt::format("cannot write{}: {}; {} of {} chunks are saved in {}: free space and run "
+                               "the same command to resume",
+                               doing, out_of_space_text, saved, total, journal_path_));
+}
+
 void CubeWriter::finish() {
-  assemble_cube(temp_path_,
-                {scenario_, plan_, shard_, [this](std::size_t id) { return read_record(id); }, split_stats_});
+  // A failed assembly leaves no .partial behind; the journal stays, so that
+  // the same command assembles the cube again once the cause is gone.
+  try {
+    assemble_cube(temp_path_, {scenario_, plan_, shard_, [this](std::size_t id) { return read_record(id); },
+                               split_stats_});
+  } catch (const OutOfSpace&) {
+    std::error_code ec;
+    fs::remove(temp_path_, ec);
+    refuse_out_of_space(temp_path_, " the cube");
+  } catch (...) {
+    std::error_code ec;
+    fs::remove(temp_path_, ec);
+    throw;
+  }
   ::close(fd_);
   fd_ = -1;
   std::error_code ec;

@@ -3,7 +3,9 @@
 #include <hdf5_hl.h>
 
 #include <algorithm>
+#include <cerrno>
 #include <cmath>
+#include <cstring>
 #include <limits>
 #include <string_view>
 #include <utility>
@@ -11,6 +13,22 @@
 namespace covergrid::output {
 
 void quiet_hdf5_errors() { H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr); }
+
+namespace {
+
+/// HDF5 (1.10.8, Debian 12) closes every file still open when the process
+/// exits. A file whose close failed (its last metadata could not be written:
+/// a full disk) stays half-destroyed in its table, and that exit-time close
+/// crashed the process (SIGSEGV in H5F__close_cb from H5_term_library).
+/// Every handle of ours is closed by its RAII owner before exit, so the
+/// library's exit handler has nothing to do but that crash: it is switched
+/// off here, before any other HDF5 call (H5dont_atexit must come first).
+const bool no_hdf5_exit_handler = [] {
+  H5dont_atexit();
+  return true;
+}();
+
+}  // namespace
 
 namespace {
 
@@ -29,8 +47,25 @@ std::string innermost_reason() {
   return reason;
 }
 
+/// Whether HDF5's error stack holds a system error for want of space: its
+/// file drivers record the failed call's errno as "errno = N," (HDF5 1.10
+/// H5FDsec2.c, HSYS_GOTO_ERROR).
+bool stack_says_out_of_space() {
+  bool found = false;
+  auto visit = [](unsigned, const H5E_error2_t* e, void* data) -> herr_t {
+    if (!e->desc) return 0;
+    for (int code : {ENOSPC, EFBIG, EDQUOT})
+      if (std::strstr(e->desc, ("errno = " + std::to_string(code) + ",").c_str()))
+        *static_cast<bool*>(data) = true;
+    return 0;
+  };
+  H5Ewalk2(H5E_DEFAULT, H5E_WALK_UPWARD, visit, &found);
+  return found;
+}
+
 [[noreturn]] void fail(const std::string& what) {
   const std::string reason = innermost_reason();
+  if (stack_says_out_of_space()) throw OutOfSpace("HDF5: cannot " + what + ": " + out_of_space_text);
   throw CubeError("HDF5: cannot " + what + (reason.empty() ? "" : " (" + reason + ")"));
 }
 
@@ -44,6 +79,8 @@ hid_t check_id(hid_t id, const std::string& what) {
 void check(herr_t status, const std::string& what) {
   if (status < 0) fail(what);
 }
+
+bool out_of_space_errno(int error) { return error == ENOSPC || error == EFBIG || error == EDQUOT; }
 
 bool is_checksum_failure(const CubeError& e) {
   return std::string_view(e.what()).find(checksum_reason) != std::string_view::npos;

@@ -110,7 +110,15 @@ class ShardReplay final : public engine::ResultSink {
   }
   void finish() override {
     const std::string temp = partial_path(out_);
-    assemble_cube(temp, {s_, plan_, nullptr, [this](std::size_t id) { return load(id); }, split_});
+    try {
+      assemble_cube(temp, {s_, plan_, nullptr, [this](std::size_t id) { return load(id); }, split_});
+    } catch (const OutOfSpace&) {
+      // The user's disk, not a fault: exit 2; merge_shards removes the .partial.
+      throw InputError(temp,
+                       fmt::format("cannot write the merged cube: {}; free space and run the same merge "
+                                   "again (the shard cubes are untouched)",
+                                   out_of_space_text));
+    }
     current_.reset();
     std::error_code ec;
     fs::rename(temp, out_, ec);

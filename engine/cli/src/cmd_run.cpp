@@ -195,6 +195,8 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
     if (state == output::OutputState::resumed && !quiet)
       err << fmt::format("covergrid: resuming the unfinished run in {}\n",
                          output::journal_path(scenario.cube_path));
+    // Damage in the journal is said even with --quiet: chunks are recomputed.
+    if (!writer.resume_note().empty()) err << "covergrid: " << writer.resume_note() << '\n';
     Progress progress(err, quiet, isatty(STDERR_FILENO) != 0);
     {
       const auto done = writer.completed();

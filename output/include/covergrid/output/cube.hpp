@@ -99,9 +99,15 @@ class CubeWriter final : public engine::ResultSink {
   void write_grid_stats(engine::Source source, std::size_t model, std::size_t n_begin, std::size_t n_count,
                         const std::vector<double>& stats) override;
   void finish() override;
+  /// After a resume: one line saying which damaged journal records were
+  /// dropped and why (their chunks are computed again); "" when none were.
+  const std::string& resume_note() const { return resume_note_; }
 
  private:
   engine::ChunkResult read_record(std::size_t chunk) const;
+  /// Throws the InputError for `path` that could not be written for want of
+  /// space (`doing`: " the cube" or ""), saying how many chunks are saved.
+  [[noreturn]] void refuse_out_of_space(const std::string& path, const std::string& doing) const;
   const engine::Scenario& scenario_;
   const engine::Plan& plan_;
   const engine::ShardSelection* shard_;
@@ -109,6 +115,8 @@ class CubeWriter final : public engine::ResultSink {
   int fd_ = -1;
   std::vector<std::int64_t> offsets_;  // record offset per chunk, -1 = not written
   std::uint64_t end_ = 0;              // end of the last valid record
+  std::uint32_t version_ = 2;          // the journal's format version (records are written in it)
+  std::string resume_note_;
   SplitStats split_stats_;
 };
 

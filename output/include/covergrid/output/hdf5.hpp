@@ -17,6 +17,20 @@ class CubeError : public std::runtime_error {
   using std::runtime_error::runtime_error;
 };
 
+/// A write refused for want of space: the file system is full (ENOSPC), a
+/// quota is reached (EDQUOT) or the file-size limit (EFBIG, ulimit -f). The
+/// user's environment, not a fault: the callers turn it into an InputError
+/// naming the file (exit 2) and keep what can be resumed.
+class OutOfSpace : public CubeError {
+ public:
+  using CubeError::CubeError;
+};
+/// True for the errno values OutOfSpace stands for.
+bool out_of_space_errno(int error);
+/// The one wording of that condition in messages.
+inline constexpr const char* out_of_space_text =
+    "No space left on device (the file system is full, or a quota or the file-size limit is reached)";
+
 /// Silences HDF5's own error printing; we report errors ourselves.
 void quiet_hdf5_errors();
 
