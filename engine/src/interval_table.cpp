@@ -41,8 +41,9 @@ IntervalTable build(const methods::IntervalMethod& method, int n, double level, 
       } catch (const std::exception& e) {
         // Boost.Math and the root finders throw std::exceptions that say
         // nothing of the input: name it so that a failing run can be redone.
-        throw methods::NumericalError(fmt::format("numerical failure at x = {}, n = {}, level = {}, side = {}: {}",
-                                                  x, n, level, methods::side_name(side), e.what()));
+        throw methods::NumericalError(
+            fmt::format("numerical failure at x = {}, n = {}, level = {}, side = {}: {}", x, n, level,
+                        methods::side_name(side), e.what()));
       }
       t.lower[i] = lim.lower;
       t.upper[i] = lim.upper;

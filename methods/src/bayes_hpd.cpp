@@ -61,10 +61,12 @@ class BayesHpd final : public IntervalMethod {
 MethodEntry bayes_hpd_entry() {
   // [1e-3, 1e6]: from far flatter than Jeffreys' 1/2 to a prior worth a
   // million trials; a = 1e16 exhausted the root finder's iterations.
-  ParamSpec a{"a", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): first shape, in [0.001, 1e6]", {}, 1e-3, 1e6,
-              true};
-  ParamSpec b{"b", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): second shape, in [0.001, 1e6]", {}, 1e-3, 1e6,
-              true};
+  ParamSpec a{
+      "a", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): first shape, in [0.001, 1e6]", {}, 1e-3, 1e6,
+      true};
+  ParamSpec b{
+      "b", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): second shape, in [0.001, 1e6]", {}, 1e-3, 1e6,
+      true};
   return {{"bayes-hpd",
            "Bayesian HPD",
            Family::bayesian,

@@ -53,7 +53,8 @@ TEST_CASE("coverage + miss_low + miss_high = 1 for every method, level 0.001 inc
             e::BinomialWindow w;
             w.fill(n, p);
             const auto c = e::exact_metrics(table, w, p);
-            INFO(entry.info.id << " " << m::side_name(side) << " n=" << n << " level=" << level << " p=" << p);
+            INFO(entry.info.id << " " << m::side_name(side) << " n=" << n << " level=" << level
+                               << " p=" << p);
             const double sum = metric(c, e::Metric::coverage) + metric(c, e::Metric::miss_low) +
                                metric(c, e::Metric::miss_high);
             CHECK(std::fabs(sum - 1.0) <= 1e-12);

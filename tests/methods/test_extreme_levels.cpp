@@ -30,7 +30,7 @@ std::vector<m::MethodInstance> instances() {
   return out;
 }
 
-const std::vector<double> levels = {m::min_level, 1e-3, 0.01, 0.1,   0.3,      1.0 / 3, 0.5,
+const std::vector<double> levels = {m::min_level, 1e-3, 0.01, 0.1,   0.3,     1.0 / 3,  0.5,
                                     2.0 / 3,      0.9,  0.95, 0.999, 0.99999, 1 - 1e-9, m::max_level};
 
 struct Case {
