@@ -1,4 +1,10 @@
+// Builds the interval table of one (method, n, level, side): every x's
+// limits, widths and the flags the metrics read.
 #include "covergrid/engine/interval_table.hpp"
+
+#include <fmt/format.h>
+
+#include <exception>
 
 namespace covergrid::engine {
 
@@ -27,7 +33,18 @@ IntervalTable build(const methods::IntervalMethod& method, int n, double level, 
       t.upper[i] = 1.0 - t.lower[j];
       t.overshoot[i] = t.overshoot[j];
     } else {
-      const auto lim = methods::interval(method, x, n, level, side);
+      methods::Limits lim{};
+      try {
+        lim = methods::interval(method, x, n, level, side);
+      } catch (const methods::ParameterError&) {
+        throw;
+      } catch (const std::exception& e) {
+        // Boost.Math and the root finders throw std::exceptions that say
+        // nothing of the input: name it so that a failing run can be redone.
+        throw methods::NumericalError(
+            fmt::format("numerical failure at x = {}, n = {}, level = {}, side = {}: {}", x, n, level,
+                        methods::side_name(side), e.what()));
+      }
       t.lower[i] = lim.lower;
       t.upper[i] = lim.upper;
       t.overshoot[i] = (lim.raw_lower < 0.0 || lim.raw_upper > 1.0) ? 1.0 : 0.0;

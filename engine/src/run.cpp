@@ -33,6 +33,7 @@ struct Combo {
   Side side;
   double level;
   const methods::IntervalMethod* method;
+  const std::string* label;  // the method's label, for error messages
 };
 
 std::vector<Combo> combos_of(const Scenario& s) {
@@ -40,11 +41,19 @@ std::vector<Combo> combos_of(const Scenario& s) {
   out.reserve(combo_count(s));
   for (Side side : s.sides)
     for (double level : s.levels)
-      for (const auto& m : s.methods) out.push_back({side, level, m.method.get()});
+      for (const auto& m : s.methods) out.push_back({side, level, m.method.get(), &m.label});
   return out;
 }
 
-IntervalTable table_for(const Combo& c, int n) { return build_table(*c.method, n, c.level, c.side); }
+/// A numerical failure names the method too (build_table names x, n, level
+/// and side), so that the run's one-line message says what to avoid.
+IntervalTable table_for(const Combo& c, int n) {
+  try {
+    return build_table(*c.method, n, c.level, c.side);
+  } catch (const methods::NumericalError& e) {
+    throw methods::NumericalError("method '" + *c.label + "': " + e.what());
+  }
+}
 
 /// Every combo's table at n, in parallel. Isolated, so that the waiting
 /// thread never picks up another chunk (which might wait on the same row's

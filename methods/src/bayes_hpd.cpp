@@ -36,9 +36,16 @@ class BayesHpd final : public IntervalMethod {
     // Parametrise by the lower tail mass u = F(L) in (0, alpha): then
     // U = Q(u + 1 - alpha), taken as the upper-tail quantile at alpha - u,
     // and the log-density gap falls from + to -.
+    // A quantile that rounds to 0 or 1 has log density -inf (its sign is
+    // right: that end is too far out); TOMS 748 interpolates through the
+    // value, so it gets +-1e30 instead, beyond any finite gap (|log density|
+    // <= (s + t) * 745 < 1e10) yet safe to subtract (an infinite gap gave
+    // NaN steps at x = 999999, n = 10^6, level 1 - 1e-9).
     auto gap = [&](double u) {
-      return beta_log_kernel(s, t, beta_quantile_upper(s, t, alpha - u)) -
-             beta_log_kernel(s, t, beta_quantile(s, t, u));
+      const double g = beta_log_kernel(s, t, beta_quantile_upper(s, t, alpha - u)) -
+                       beta_log_kernel(s, t, beta_quantile(s, t, u));
+      if (std::isinf(g)) return std::copysign(1e30, g);
+      return g;
     };
     const double u = solve_bracketed(gap, alpha * 1e-12, alpha * (1 - 1e-12), "bayes-hpd lower tail mass");
     return {beta_quantile(s, t, u), beta_quantile_upper(s, t, alpha - u)};
@@ -52,8 +59,14 @@ class BayesHpd final : public IntervalMethod {
 }  // namespace
 
 MethodEntry bayes_hpd_entry() {
-  ParamSpec a{"a", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): first shape", {}, 0, 0};
-  ParamSpec b{"b", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): second shape", {}, 0, 0};
+  // [1e-3, 1e6]: from far flatter than Jeffreys' 1/2 to a prior worth a
+  // million trials; a = 1e16 exhausted the root finder's iterations.
+  ParamSpec a{
+      "a", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): first shape, in [0.001, 1e6]", {}, 1e-3, 1e6,
+      true};
+  ParamSpec b{
+      "b", ParamSpec::Kind::number, 1.0, "prior Beta(a, b): second shape, in [0.001, 1e6]", {}, 1e-3, 1e6,
+      true};
   return {{"bayes-hpd",
            "Bayesian HPD",
            Family::bayesian,

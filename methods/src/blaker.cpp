@@ -9,7 +9,11 @@
 //   a2 = t2 + P(X >= k2), k2 the smallest k with P(X >= k) <= t2;
 //   gamma = min(1, a1, a2); the confidence set is {p : gamma(p) > alpha}.
 // Lower limit: since t1 <= gamma <= 2 t1 below p^, it lies in
-// [CP_L(alpha/2), CP_L(alpha)] (one-sided Clopper-Pearson bounds). For levels
+// [CP_L(alpha/2), min(CP_L(alpha), p^)] (one-sided Clopper-Pearson bounds;
+// p^ = x/n is the median of Bin(n, p^), so gamma(p^) = 1 and p^ is always
+// accepted, while above 1/2 CP_L(alpha) lies beyond p^ and is not: levels
+// below 1/2 once returned CP_L(alpha) there, a lower limit above the upper
+// one). For levels
 // of 2/3 and above it is found exactly by a piecewise analysis of gamma (see
 // blaker_lower); the accepted set is not always an interval, and a plain scan
 // of p can miss a narrow accepted excursion and so give an interval whose
@@ -110,7 +114,10 @@ double blaker_lower_scan(int x, int n, double alpha, double lo, double hi) {
 double blaker_lower(int x, int n, double alpha) {
   if (x == 0) return 0.0;
   const double lo = clopper_pearson_lower(x, n, alpha / 2);
-  const double hi = clopper_pearson_lower(x, n, alpha);
+  // alpha <= 1/2 keeps CP_L(alpha) <= p^ (P(X >= x; p^) >= 1/2); beyond it
+  // the bracket ends at p^, which is accepted.
+  const double p_hat = static_cast<double>(x) / n;
+  const double hi = std::min(clopper_pearson_lower(x, n, alpha), p_hat);
   if (alpha > 1.0 / 3.0) return blaker_lower_scan(x, n, alpha, lo, hi);
   auto t1 = [&](double p) { return binomial_sf(x - 1, n, p); };  // P(X >= x)
   int k = largest_cdf_at_most(x - 1, n, lo, t1(lo));

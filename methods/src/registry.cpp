@@ -54,12 +54,14 @@ ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given) {
         if (!d)
           throw ParameterError(
               key, fmt::format("parameter '{}' of method '{}' must be a number", key, entry.info.id));
-        if (!std::isfinite(*d) || *d <= spec->min || (spec->max > 0 && *d > spec->max))
+        if (!std::isfinite(*d) || (spec->min_closed ? *d < spec->min : *d <= spec->min) ||
+            (spec->max > 0 && *d > spec->max))
           throw ParameterError(
-              key, spec->max > 0 ? fmt::format("parameter '{}' of method '{}' = {} is outside ({}, {}]", key,
-                                               entry.info.id, *d, spec->min, spec->max)
-                                 : fmt::format("parameter '{}' of method '{}' = {} must be greater than {}",
-                                               key, entry.info.id, *d, spec->min));
+              key, spec->max > 0
+                       ? fmt::format("parameter '{}' of method '{}' = {} is outside {}{:g}, {:g}]", key,
+                                     entry.info.id, *d, spec->min_closed ? "[" : "(", spec->min, spec->max)
+                       : fmt::format("parameter '{}' of method '{}' = {} must be greater than {}", key,
+                                     entry.info.id, *d, spec->min));
         break;
       }
       case ParamSpec::Kind::choice: {

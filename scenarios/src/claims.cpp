@@ -1,6 +1,7 @@
 #include "covergrid/scenarios/claims.hpp"
 
 #include "covergrid/scenarios/loader.hpp"
+#include "covergrid/methods/limits.hpp"
 #include "toml_fields.hpp"
 
 #include <fstream>
@@ -147,8 +148,9 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
     c.method = claim_method(ctx, *m);
     const toml::node* lv = required("level");
     c.level = number_of(ctx, *lv, "[[claim]] level");
-    if (!(c.level > 0 && c.level < 1))
-      ctx.fail(lv, fmt::format("[[claim]] level = {} is outside (0, 1)", value_text(*lv)));
+    if (!methods::level_in_range(c.level))
+      ctx.fail(lv, fmt::format("[[claim]] level = {} is outside {} (the levels every method computes)",
+                               value_text(*lv), methods::level_range_text));
     if (const auto* sd = t.get("side")) {
       const std::string name = string_of(ctx, *sd, "[[claim]] side");
       if (!methods::parse_side(name, c.side))

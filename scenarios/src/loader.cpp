@@ -6,6 +6,7 @@
 #include "covergrid/engine/output_location.hpp"
 #include "covergrid/engine/random.hpp"
 #include "covergrid/engine/sha256.hpp"
+#include "covergrid/methods/limits.hpp"
 
 #include <fmt/format.h>
 #include <toml++/toml.h>
@@ -229,8 +230,9 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
     if (items.empty()) ctx.fail(level_node, "[grid] levels is an empty list");
     for (const auto* i : items) {
       const double v = number_of(ctx, *i, "[grid] levels entries");
-      if (!(v > 0 && v < 1))
-        ctx.fail(i, fmt::format("[grid] levels value {} is outside (0, 1)", value_text(*i)));
+      if (!methods::level_in_range(v))
+        ctx.fail(i, fmt::format("[grid] levels value {} is outside {} (the levels every method computes)",
+                                value_text(*i), methods::level_range_text));
       if (std::find(s.levels.begin(), s.levels.end(), v) != s.levels.end())
         ctx.fail(i, fmt::format("[grid] levels lists {} twice", value_text(*i)));
       s.levels.push_back(v);

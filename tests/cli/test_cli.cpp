@@ -76,7 +76,7 @@ TEST_CASE("bad command-line values give exit 2 and name the option", "[cli][bad-
   } cases[] = {
       {{"intervals", "21", "20"}, "X = 21 must lie in 0..N"},
       {{"intervals", "3", "0"}, "N = 0 must be at least 1"},
-      {{"intervals", "3", "20", "--level", "1.5"}, "--level: 1.5 is outside (0, 1)"},
+      {{"intervals", "3", "20", "--level", "1.5"}, "--level: 1.5 is outside [1e-06, 0.999999999999]"},
       {{"intervals", "3", "20", "--side", "left"}, "--side: \"left\" is not one of"},
       {{"intervals", "3", "20", "--method", "walds"}, "unknown method id 'walds'"},
       {{"intervals", "3", "20", "--method", "jeffreys:edge=1"}, "takes no parameter 'edge'"},

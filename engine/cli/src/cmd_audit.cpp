@@ -114,7 +114,7 @@ Command add_audit_command(CLI::App& app) {
   audit->add_option("--claims,--scenario", a->claims_file,
                     "claims file (TOML) holding one or more [[claim]]");
   audit->add_option("--method", a->method, "method id, optionally id:key=value,...");
-  audit->add_option("--level", a->level, "nominal confidence level in (0, 1)");
+  audit->add_option("--level", a->level, "nominal confidence level in [1e-6, 1 - 1e-12]");
   audit->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
   audit->add_option("--n", a->n, "sample sizes: A:B, A:B:STEP or a list A,B,C");
   audit->add_option("--p", a->p, "true-proportion range LO:HI (or one value)");

@@ -77,7 +77,7 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
                   const std::vector<std::string>& method_texts, bool csv, std::ostream& out) {
   if (n < 1) throw InputError("N", fmt::format("N = {} must be at least 1", n));
   if (x < 0 || x > n) throw InputError("X", fmt::format("X = {} must lie in 0..N = 0..{}", x, n));
-  if (!(level > 0 && level < 1)) throw InputError("--level", fmt::format("{} is outside (0, 1)", level));
+  check_level(level, "--level");
   if (n > scenarios::max_sample_size)
     throw InputError(
         "N", fmt::format("N = {} is above the largest supported n ({})", n, scenarios::max_sample_size));
@@ -156,7 +156,7 @@ Command add_intervals_command(CLI::App& app) {
       app.add_subcommand("intervals", "Every method's limits for observed data X successes in N trials");
   intervals->add_option("X", a->x, "observed successes")->required();
   intervals->add_option("N", a->n, "trials")->required();
-  intervals->add_option("--level", a->level, "confidence level in (0, 1) (default 0.95)");
+  intervals->add_option("--level", a->level, "confidence level in [1e-6, 1 - 1e-12] (default 0.95)");
   intervals->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
   intervals->add_option("--method", a->methods,
                         "method id, optionally id:key=value,... (repeatable; default all)");

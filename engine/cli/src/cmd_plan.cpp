@@ -219,7 +219,7 @@ Command add_plan_command(CLI::App& app) {
   auto a = std::make_shared<PlanArgs>();
   auto* plan = app.add_subcommand("plan", "The smallest n meeting coverage, width or margin requirements");
   plan->add_option("--method", a->methods, "method id, optionally id:key=value,... (repeat to compare)");
-  plan->add_option("--level", a->level, "nominal confidence level in (0, 1)");
+  plan->add_option("--level", a->level, "nominal confidence level in [1e-6, 1 - 1e-12]");
   plan->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
   plan->add_option("--p", a->p,
                    "true-proportion range LO:HI (or one value) the requirements must hold over; "

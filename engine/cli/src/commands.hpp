@@ -42,7 +42,7 @@ std::vector<int> parse_n_set(const std::string& text, const std::string& option)
 std::pair<double, double> parse_p_range(const std::string& text, const std::string& option);
 /// two-sided, lower-bound or upper-bound.
 methods::Side parse_side_option(const std::string& text, const std::string& option);
-/// A level in (0, 1).
+/// A level in [methods::min_level, methods::max_level] (README, "Numerical limits").
 void check_level(double level, const std::string& option);
 
 /// A CLI11 check for an integer option in [lo, hi]; it adds nothing to the

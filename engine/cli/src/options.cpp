@@ -1,5 +1,6 @@
 #include "commands.hpp"
 
+#include "covergrid/methods/limits.hpp"
 #include "covergrid/scenarios/claims.hpp"
 #include "covergrid/scenarios/loader.hpp"
 
@@ -128,7 +129,10 @@ methods::Side parse_side_option(const std::string& text, const std::string& opti
 }
 
 void check_level(double level, const std::string& option) {
-  if (!(level > 0 && level < 1)) throw InputError(option, fmt::format("{:g} is outside (0, 1)", level));
+  if (!methods::level_in_range(level))
+    throw InputError(option, fmt::format("{:g} is outside {} (the levels every method computes; README, "
+                                         "\"Numerical limits\")",
+                                         level, methods::level_range_text));
 }
 
 CLI::Validator integer_in(long lo, long hi) {

@@ -73,6 +73,7 @@ struct ParamSpec {
   std::vector<std::string> choices;  // for Kind::choice
   double min = 0.0;                  // for Kind::number: open lower bound
   double max = 0.0;                  // for Kind::number: 0 = unbounded above
+  bool min_closed = false;           // for Kind::number: min itself is allowed
 };
 
 /// One method of the catalog, with its parameters already bound.
