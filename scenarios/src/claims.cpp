@@ -105,7 +105,7 @@ methods::MethodInstance claim_method(const Context& ctx, const toml::node& node)
     return methods::make_instance(id, given);
   } catch (const methods::ParameterError& e) {
     const toml::node* at = node.is_table() ? node.as_table()->get(e.key()) : nullptr;
-    ctx.fail(at ? at : &node, fmt::format("[[claim]] method {}", e.what()));
+    ctx.fail(at ? at : &node, fmt::format("[[claim]] {}", e.what()));
   }
 }
 

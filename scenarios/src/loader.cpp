@@ -144,6 +144,12 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
         const std::int64_t k = integer_of(ctx, *count, what + ".count");
         if (k < 1) ctx.fail(count, fmt::format("{}.count = {} must be at least 1", what, k));
         if (k > 10'000'000) ctx.fail(count, fmt::format("{}.count = {} is above 10^7", what, k));
+        // One point of a range is ambiguous (which end?): only from = to may say it.
+        if (k == 1 && a != b)
+          ctx.fail(count,
+                   fmt::format("{}.count = 1 needs from = to (from = {:g}, to = {:g}); write one value "
+                               "instead, or a count of at least 2",
+                               what, a, b));
         if (space == "logit" && (a <= 0 || b >= 1))
           ctx.fail(spacing, what + ": logit spacing needs 0 < from and to < 1");
         const int places = space == "linear" ? grid_places(a, b, k) : -1;
@@ -327,8 +333,7 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
     const toml::node* label_node = t.get("label");
     if (label_node) {
       label = string_of(ctx, *label_node, "[[method]] label");
-      if (label.empty() || label.find_first_of("/\"\n") != std::string::npos)
-        ctx.fail(label_node, "[[method]] label must be non-empty without '/', '\"' or newlines");
+      check_label(ctx, *label_node, label, "[[method]] label");
     }
     for (const auto& [key, node] : t) {
       if (key.str() == "id" || key.str() == "label") continue;
@@ -370,7 +375,10 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       else
         ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: \"binomial\")", k));
       spec.label = k;
-      if (const auto* l = t.get("label")) spec.label = string_of(ctx, *l, "[[model]] label");
+      if (const auto* l = t.get("label")) {
+        spec.label = string_of(ctx, *l, "[[model]] label");
+        check_label(ctx, *l, spec.label, "[[model]] label");
+      }
       if (!model_labels.insert(spec.label).second)
         ctx.fail(&item, fmt::format("[[model]] label \"{}\" is used twice", spec.label));
       s.models.push_back(spec);

@@ -5,6 +5,9 @@
 #include "covergrid/methods/registry.hpp"
 
 #include <fmt/format.h>
+
+#include <cctype>
+#include <string_view>
 #include <toml++/toml.h>
 
 #include <algorithm>
@@ -89,9 +92,35 @@ inline std::int64_t integer_of(const Context& ctx, const toml::node& node, const
   ctx.fail(&node, fmt::format("{} must be an integer, not {}", what, type_name(node)));
 }
 
+/// A string value; NUL and other control characters are refused in every
+/// string (a NUL would cut a label or a path short where it is stored).
 inline std::string string_of(const Context& ctx, const toml::node& node, const std::string& what) {
-  if (auto s = node.value_exact<std::string>()) return *s;
+  if (auto s = node.value_exact<std::string>()) {
+    for (const char ch : *s)
+      if (static_cast<unsigned char>(ch) < 0x20 && ch != '\t')
+        ctx.fail(&node, fmt::format("{} holds a control character (code {}); strings may not", what,
+                                    static_cast<int>(static_cast<unsigned char>(ch))));
+    return *s;
+  }
   ctx.fail(&node, fmt::format("{} must be a string, not {}", what, type_name(node)));
+}
+
+/// The characters a method or model label may hold: letters, digits, space
+/// and _ - . , = ( ) + (the default labels use them, e.g.
+/// "jeffreys(boundary=false)"); 1 to 64 of them, not "." or "..", no
+/// leading or trailing space. Labels name HDF5 groups and netCDF
+/// coordinates, so the set is kept to what every reader accepts.
+inline void check_label(const Context& ctx, const toml::node& node, const std::string& label,
+                        const std::string& what) {
+  bool ok = !label.empty() && label.size() <= 64 && label != "." && label != ".." && label.front() != ' ' &&
+            label.back() != ' ';
+  for (const char ch : label)
+    ok = ok && (std::isalnum(static_cast<unsigned char>(ch)) ||
+                std::string_view(" _-.,=()+").find(ch) != std::string_view::npos);
+  if (!ok)
+    ctx.fail(&node, fmt::format("{} = \"{}\" is not a label: use 1 to 64 letters, digits, spaces and "
+                                "_ - . , = ( ) +, not \".\" or \"..\", no space at either end",
+                                what, label));
 }
 
 inline bool bool_of(const Context& ctx, const toml::node& node, const std::string& what) {

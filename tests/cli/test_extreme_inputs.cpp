@@ -108,3 +108,26 @@ TEST_CASE("a scenario with p = 4.9e-324 runs for every method and writes no nan"
   CHECK(summary.find("nan") == std::string::npos);
   CHECK(summary.find("wald") != std::string::npos);
 }
+
+TEST_CASE("a bad-input message stays on one line and says each word once", "[cli][bad-input]") {
+  covergrid::test::ScratchDir dir("one-line");
+  // A newline inside a scenario string is refused, on one line.
+  std::ofstream(dir.file("nl.toml"))
+      << "[grid]\nn = 5\np = 0.5\nlevels = [0.95]\n[[method]]\nid = \"wil\\nson\\tx\"\n";
+  const auto r = covergrid::test::call({"run", dir.file("nl.toml"), "--quiet"});
+  CHECK(r.status == 2);
+  CHECK(r.err.find("nl.toml:6: [[method]] id holds a control character (code 10)") != std::string::npos);
+  CHECK(r.err.find('\n') == r.err.size() - 1);
+  // A newline and a tab in an option value are escaped in the message.
+  const auto o = covergrid::test::call({"intervals", "3", "10", "--method", "wil\nson\tx"});
+  CHECK(o.status == 2);
+  CHECK(o.err.find("wil\\nson\\tx") != std::string::npos);
+  CHECK(o.err.find('\n') == o.err.size() - 1);
+  // A claims file's parameter error: "method" once, not "method method".
+  std::ofstream(dir.file("c.toml"))
+      << "[[claim]]\nmethod = { id = \"jeffreys\", edge = 1 }\nlevel = 0.95\nn = 10\np = 0.5\n";
+  const auto c = covergrid::test::call({"audit", "--claims", dir.file("c.toml")});
+  CHECK(c.status == 2);
+  CHECK(c.err.find("method method") == std::string::npos);
+  CHECK(c.err.find("c.toml:2: [[claim]] method 'jeffreys' takes no parameter 'edge'") != std::string::npos);
+}

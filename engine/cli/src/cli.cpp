@@ -9,6 +9,29 @@
 
 namespace covergrid::cli {
 
+namespace {
+
+/// A bad-input message as one line: control characters that came from the
+/// input (a newline or tab inside a string value) are written as escapes.
+std::string one_line(const std::string& message) {
+  std::string out;
+  for (const char ch : message) {
+    if (ch == '\n')
+      out += "\\n";
+    else if (ch == '\t')
+      out += "\\t";
+    else if (ch == '\r')
+      out += "\\r";
+    else if (static_cast<unsigned char>(ch) < 0x20 || ch == 0x7f)
+      out += fmt::format("\\x{:02x}", static_cast<unsigned>(static_cast<unsigned char>(ch)));
+    else
+      out += ch;
+  }
+  return out;
+}
+
+}  // namespace
+
 int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   CLI::App app{fmt::format("covergrid {} — how confidence intervals for a proportion really behave: exact\n"
                            "coverage, tail misses and width of interval methods over grids of n and p.",
@@ -63,7 +86,7 @@ int run_cli(const std::vector<std::string>& args, std::ostream& out, std::ostrea
     for (const auto& c : commands)
       if (c.app->parsed()) return c.run(out, err);
   } catch (const InputError& e) {
-    err << "covergrid: " << e.what() << '\n';
+    err << "covergrid: " << one_line(e.what()) << '\n';
     return exit_bad_input;
   } catch (const std::exception& e) {
     err << "covergrid: internal error: " << e.what() << '\n';
