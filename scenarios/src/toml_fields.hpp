@@ -6,7 +6,6 @@
 
 #include <fmt/format.h>
 
-#include <cctype>
 #include <string_view>
 #include <toml++/toml.h>
 
@@ -105,21 +104,18 @@ inline std::string string_of(const Context& ctx, const toml::node& node, const s
   ctx.fail(&node, fmt::format("{} must be a string, not {}", what, type_name(node)));
 }
 
-/// The characters a method or model label may hold: letters, digits, space
-/// and _ - . , = ( ) + (the default labels use them, e.g.
-/// "jeffreys(boundary=false)"); 1 to 64 of them, not "." or "..", no
-/// leading or trailing space. Labels name HDF5 groups and netCDF
-/// coordinates, so the set is kept to what every reader accepts.
+/// A method or model label: 1 to 64 bytes of printable text (UTF-8 allowed)
+/// without '/' or '"', not "." or "..", no space at either end. Labels name
+/// HDF5 groups (where '/' separates and "." is the group itself) and are
+/// echoed in quotes in messages and tables.
 inline void check_label(const Context& ctx, const toml::node& node, const std::string& label,
                         const std::string& what) {
   bool ok = !label.empty() && label.size() <= 64 && label != "." && label != ".." && label.front() != ' ' &&
-            label.back() != ' ';
-  for (const char ch : label)
-    ok = ok && (std::isalnum(static_cast<unsigned char>(ch)) ||
-                std::string_view(" _-.,=()+").find(ch) != std::string_view::npos);
+            label.back() != ' ' && label.find_first_of("/\"") == std::string::npos;
+  for (const char ch : label) ok = ok && static_cast<unsigned char>(ch) >= 0x20 && ch != 0x7f;
   if (!ok)
-    ctx.fail(&node, fmt::format("{} = \"{}\" is not a label: use 1 to 64 letters, digits, spaces and "
-                                "_ - . , = ( ) +, not \".\" or \"..\", no space at either end",
+    ctx.fail(&node, fmt::format("{} = \"{}\" is not a label: use 1 to 64 printable characters without "
+                                "'/' or '\"', not \".\" or \"..\", no space at either end",
                                 what, label));
 }
 
