@@ -1,5 +1,6 @@
 #include "covergrid/output/cube.hpp"
 
+#include "covergrid/engine/output_location.hpp"
 #include "covergrid/engine/error.hpp"
 #include "covergrid/engine/sha256.hpp"
 #include "covergrid/methods/registry.hpp"
@@ -360,9 +361,8 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
       journal_path_(journal_path(scenario.cube_path)),
       temp_path_(partial_path(scenario.cube_path)),
       offsets_(plan.chunks.size(), -1) {
-  const fs::path parent = fs::path(final_path_).parent_path();
-  if (!parent.empty() && !fs::is_directory(parent))
-    throw InputError(final_path_, "its folder " + parent.string() + " does not exist");
+  if (const std::string problem = engine::output_location_problem(final_path_); !problem.empty())
+    throw InputError(final_path_, problem);
   const std::string header = header_bytes(scenario, plan);
   if (resume) {
     const auto h = read_journal_header(journal_path_);

@@ -2,6 +2,7 @@
 // shard cubes into the cube assembly a single run uses.
 #include "covergrid/output/merge.hpp"
 
+#include "covergrid/engine/output_location.hpp"
 #include "covergrid/engine/error.hpp"
 #include "covergrid/engine/run.hpp"
 #include "covergrid/engine/shard.hpp"
@@ -229,9 +230,8 @@ MergeReport merge_shards(const std::vector<std::string>& shards, const std::stri
   for (const auto& p : shards)
     if (same_file(p, out_path))
       throw InputError(out_path, "is one of the shard cubes to merge; choose another -o");
-  const fs::path parent = fs::path(out_path).parent_path();
-  if (!parent.empty() && !fs::is_directory(parent))
-    throw InputError("-o " + out_path, "the folder " + parent.string() + " does not exist");
+  if (const std::string problem = engine::output_location_problem(out_path); !problem.empty())
+    throw InputError("-o " + out_path, problem);
   if (fs::exists(out_path) && !overwrite)
     throw InputError(out_path, "exists; not touching it (use --overwrite to replace it)");
 

@@ -128,7 +128,8 @@ TEST_CASE("report, audit and merge check -o before any work", "[cli][paths]") {
 
 TEST_CASE("run states its estimate and asks for --yes when the run is large", "[cli][paths][estimate]") {
   ScratchDir dir("large");
-  // 10^5 n x 10^4 p = 10^9 cells: days of work and terabytes of data.
+  // 10^5 n x 10^4 p = 10^9 cells (counted from the grid): hours of work and
+  // tens of GB of data, above the project's own large-run thresholds.
   std::ofstream(dir.file("huge.toml")) << R"([grid]
 n = { from = 1, to = 100000 }
 p = { from = 0.0001, to = 0.9999, count = 10000 }
@@ -148,7 +149,8 @@ cube = "huge.h5"
   CHECK(run.err.find("--yes: this run is large") != std::string::npos);
   CHECK(entries(dir.path()) == 1);  // nothing created
 
-  // A small run prints its estimate on stderr as it starts, and is not large.
+  // A small run prints its estimate on stderr as it starts, and is not large;
+  // its cell count is the grid's own: 16 n (5..20) x 19 p = 304.
   std::ofstream(dir.file("small.toml")) << scenario("[output]\ncube = \"small.h5\"\ntables = \"\"\n");
   const auto small_dry = call({"run", dir.file("small.toml"), "--dry-run"});
   CHECK(small_dry.out.find("estimate: 304 cells to compute") != std::string::npos);

@@ -4,6 +4,11 @@
 // to 1.998); a subnormal p behaves like any tiny p (as p = 0 where the
 // interval at x = 0 is not [0, 0]); a numerical failure while a
 // table is built names x, n, level and side.
+// Sources: the partition is a proven property (the three events are
+// disjoint and exhaustive for every closed interval); 1e-12 is our own
+// rounding bound for a sum of at most a few hundred pmf terms; p = 1e-300
+// puts P(X >= 1) <= n * 1e-300 (a proven bound), so 1e-15 leaves only Boost's
+// pmf rounding (Boost.Math 1.74, Debian 12).
 #include "covergrid/engine/binomial_window.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"

@@ -1,4 +1,4 @@
-// The cube against the contract of design section 8, read back with the raw
+// The cube against the layout documented in the README ("The result cube"), read back with the raw
 // HDF5 API; its values bit-identical to an in-memory run; refusal of other
 // scenarios' outputs; damaged and foreign files rejected with InputError.
 #include "support.hpp"

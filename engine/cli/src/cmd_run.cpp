@@ -177,9 +177,10 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
     // A fresh run is estimated, and refused if large without --yes, before
     // anything is created; a resumed one (already accepted) is estimated on
     // what is left.
+    const std::vector<std::size_t> mine = chunks_of(plan, shard ? &*shard : nullptr);
     std::optional<engine::RunEstimate> estimate;
     if (state != output::OutputState::resumed) {
-      estimate = engine::estimate_run(scenario, plan, chunks_of(plan, shard ? &*shard : nullptr), a.threads);
+      estimate = engine::estimate_run(scenario, plan, mine, a.threads);
       check_large(*estimate, a.yes);
     }
     output::CubeWriter writer(scenario, plan, state == output::OutputState::resumed,
@@ -187,7 +188,7 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
     if (!estimate) {
       const auto done = writer.completed();
       std::vector<std::size_t> todo;
-      for (std::size_t id : chunks_of(plan, shard ? &*shard : nullptr))
+      for (std::size_t id : mine)
         if (!done[id]) todo.push_back(id);
       estimate = engine::estimate_run(scenario, plan, todo, a.threads);
     }

@@ -1,5 +1,5 @@
 #pragma once
-/// Coverage claims and their verdicts (design section 9, `audit`).
+/// Coverage claims and their verdicts (`covergrid audit`; README, "Auditing a claim").
 ///
 /// A claim says that a method, at a level and side, keeps its coverage at or
 /// above nominal - tolerance for every n of a set, over a p-range: either its

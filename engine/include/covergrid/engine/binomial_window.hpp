@@ -9,7 +9,7 @@
 /// P(k) r_k / (1 - r_k) (a geometric series); below the mode the same holds for
 /// s_k = P(k-1)/P(k). Each side stops as soon as that bound is below
 /// tail_bound_per_side, so the neglected mass is below 2 * 2.5e-16 = 5e-16,
-/// inside the design's 1e-15.
+/// inside the 1e-15 the exact sums promise (README, "How the numbers are computed").
 #include <vector>
 
 namespace covergrid::engine {

@@ -1,5 +1,5 @@
 #pragma once
-/// Monte Carlo evaluation of a cell (design section 6): R replicates drawn
+/// Monte Carlo evaluation of a cell (README, "Monte Carlo"): R replicates drawn
 /// once from the cell's counter-based stream, tallied into a histogram over
 /// x, and reduced against every method's interval table (common random
 /// numbers: all methods, levels and sides see the same draws, so their

@@ -1,5 +1,5 @@
 #pragma once
-/// Sample-size planning (design section 9, `plan`): the smallest n in a
+/// Sample-size planning (`covergrid plan`; README, "Planning a sample size"): the smallest n in a
 /// search range at which a method meets every stated requirement over a
 /// p-range, by the exact engine (binomial model), without writing a cube.
 ///

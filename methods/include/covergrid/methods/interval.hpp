@@ -2,7 +2,7 @@
 /// The interval-method interface: a method turns observed data (x successes
 /// in n trials) and tail probabilities into confidence limits.
 ///
-/// Conventions shared by every method (design section 4):
+/// Conventions shared by every method (README, "Interval methods"):
 ///  - two-sided at level 1-a uses a_lo = a_hi = a/2;
 ///  - a lower bound at level 1-a uses a_lo = a and upper limit 1;
 ///  - an upper bound at level 1-a uses a_hi = a and lower limit 0;

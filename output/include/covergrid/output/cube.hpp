@@ -1,5 +1,5 @@
 #pragma once
-/// The result cube (design section 8): writing it as a ResultSink, with
+/// The result cube (layout: README, "The result cube"): writing it as a ResultSink, with
 /// resume, and reading it back.
 ///
 /// Layout (format version 2): root attributes format, format_version,

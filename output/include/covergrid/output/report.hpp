@@ -1,5 +1,5 @@
 #pragma once
-/// The visual report (design section 9, `covergrid report`): one
+/// The visual report (`covergrid report`; README, "The report"): one
 /// self-contained HTML page with inline SVG and CSS (no scripts, no network,
 /// no other files), one section per (model, side, level) of a complete cube.
 #include "covergrid/output/cube.hpp"

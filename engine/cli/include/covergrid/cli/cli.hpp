@@ -7,7 +7,9 @@
 
 namespace covergrid::cli {
 
-/// Exit statuses (design section 9).
+/// Exit statuses (README, "Commands"): 0 success, 1 internal failure or an
+/// interrupted run, 2 bad input, 3 a claim refuted, 4 inconclusive, 5 no n
+/// in a plan's range.
 enum Exit : int {
   exit_ok = 0,
   exit_internal = 1,
