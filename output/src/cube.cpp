@@ -129,7 +129,10 @@ class Reader {
   }
   void get_vector(std::vector<double>& v) {
     const auto size = get<std::uint64_t>();
-    need(size * sizeof(double));
+    // Compared as a count, never as size * 8, which wraps for a crafted size
+    // (2^61 + 1 times 8 is 8) and would let resize() try 2^61 elements.
+    if (size > static_cast<std::uint64_t>(end_ - p_) / sizeof(double))
+      throw CubeError("journal record is shorter than its contents");
     v.resize(size);
     std::memcpy(v.data(), p_, size * sizeof(double));
     p_ += size * sizeof(double);

@@ -46,9 +46,12 @@ std::vector<int> claim_n(const Context& ctx, const toml::node& node, const std::
       step = integer_of(ctx, *s, what + ".step");
       if (step < 1) ctx.fail(s, fmt::format("{}.step = {} must be at least 1", what, step));
     }
-    if (static_cast<std::size_t>((b - a) / step + 1) > max_claim_n_count)
+    // Counted, never stepped past b: a + step can overflow for a step near
+    // INT64_MAX, while a + k * step for k < count stays within [a, b].
+    const std::int64_t count = (std::int64_t{b} - a) / step + 1;
+    if (static_cast<std::size_t>(count) > max_claim_n_count)
       ctx.fail(&node, fmt::format("{} spans more than {} values", what, max_claim_n_count));
-    for (std::int64_t v = a; v <= b; v += step) out.push_back(static_cast<int>(v));
+    for (std::int64_t k = 0; k < count; ++k) out.push_back(static_cast<int>(a + k * step));
   } else {
     out.push_back(one(node, what));
   }

@@ -6,6 +6,7 @@
 
 #include <catch2/catch.hpp>
 #include <hdf5.h>
+#include <signal.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -39,10 +40,24 @@ inline pid_t spawn(const std::filesystem::path& dir, const std::vector<std::stri
   return pid;
 }
 
-/// The exit status, or 128 + signal.
-inline int wait_status(pid_t pid) {
+/// The exit status, or 128 + signal. A child still running after
+/// `limit_seconds` is killed (SIGKILL) and reported as 128 + 9, so that no
+/// test of damaged or hostile input can hang the suite; the limit is far
+/// above what any case here takes (seconds).
+inline int wait_status(pid_t pid, int limit_seconds = 240) {
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(limit_seconds);
   int status = 0;
-  waitpid(pid, &status, 0);
+  for (;;) {
+    const pid_t r = waitpid(pid, &status, WNOHANG);
+    if (r == pid) break;
+    if (r < 0) return 127;
+    if (std::chrono::steady_clock::now() > deadline) {
+      kill(pid, SIGKILL);
+      waitpid(pid, &status, 0);
+      break;
+    }
+    std::this_thread::sleep_for(std::chrono::milliseconds(2));
+  }
   return WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
 }
 

@@ -24,10 +24,11 @@ using covergrid::test::slurp;
 
 namespace {
 
-/// Runs the built executable in `dir` with `args`; stdin closed.
+/// Runs the built executable in `dir` with `args`; stdin closed; killed
+/// after 240 s (coreutils timeout), so that no case can hang the suite.
 covergrid::test::CliResult exe(const fs::path& dir, const std::string& args) {
-  const std::string cmd =
-      fmt::format("cd '{}' && '{}' {} >cli.out 2>cli.err </dev/null", dir.string(), COVERGRID_EXE, args);
+  const std::string cmd = fmt::format("cd '{}' && timeout -s KILL 240 '{}' {} >cli.out 2>cli.err </dev/null",
+                                      dir.string(), COVERGRID_EXE, args);
   const int raw = std::system(cmd.c_str());
   covergrid::test::CliResult r{WIFEXITED(raw) ? WEXITSTATUS(raw) : -1, slurp(dir / "cli.out"),
                                slurp(dir / "cli.err")};

@@ -92,3 +92,20 @@ TEST_CASE("the bundled example claims file loads", "[scenarios][claims]") {
   CHECK(claims[3].replicates == 20000);
   CHECK(claims[3].seed == 90210);
 }
+
+TEST_CASE("an n step near INT64_MAX expands to the one value in range, never wraps",
+          "[scenarios][claims][robustness]") {
+  // Was signed overflow in the loader (UBSan abort) and n = 30..0 in the
+  // Release build ("refuted at n = 1").
+  const auto claims = load_claims_text(
+      "[[claim]]\nmethod = \"wilson\"\nlevel = 0.95\np = 0.5\n"
+      "n = { from = 30, to = 120, step = 9223372036854775807 }\n",
+      "c.toml");
+  REQUIRE(claims.size() == 1);
+  CHECK(claims[0].n == std::vector<int>{30});
+  const auto stepped = load_claims_text(
+      "[[claim]]\nmethod = \"wilson\"\nlevel = 0.95\np = 0.5\n"
+      "n = { from = 30, to = 120, step = 45 }\n",
+      "c.toml");
+  CHECK(stepped[0].n == std::vector<int>{30, 75, 120});
+}

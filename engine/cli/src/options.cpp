@@ -7,6 +7,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <cerrno>
 #include <cmath>
 #include <cstdlib>
 
@@ -51,9 +52,12 @@ methods::MethodInstance parse_method_option(const std::string& text, const std::
 namespace {
 
 bool parse_long(const std::string& s, long& out) {
+  // strtol saturates at LONG_MAX with ERANGE: a value out of range is not
+  // a number we accept.
   char* end = nullptr;
+  errno = 0;
   out = std::strtol(s.c_str(), &end, 10);
-  return !s.empty() && end && *end == '\0';
+  return !s.empty() && end && *end == '\0' && errno != ERANGE;
 }
 
 bool parse_double(const std::string& s, double& out) {
@@ -96,9 +100,11 @@ std::vector<int> parse_n_set(const std::string& text, const std::string& option)
     if (parts.size() == 3 && (!parse_long(parts[2], step) || step < 1))
       throw InputError(where, "the step must be a whole number of at least 1");
     if (b < a) throw InputError(where, fmt::format("the range {}..{} is empty", a, b));
-    if (static_cast<std::size_t>((b - a) / step + 1) > scenarios::max_claim_n_count)
+    // Counted, never stepped past b (a + step can overflow for a huge step).
+    const long count = (long{b} - a) / step + 1;
+    if (static_cast<std::size_t>(count) > scenarios::max_claim_n_count)
       throw InputError(where, fmt::format("more than {} values", scenarios::max_claim_n_count));
-    for (long v = a; v <= b; v += step) out.push_back(static_cast<int>(v));
+    for (long k = 0; k < count; ++k) out.push_back(static_cast<int>(a + k * step));
   } else {
     for (const auto& part : split(text, ',')) out.push_back(value(part));
     std::sort(out.begin(), out.end());
