@@ -42,6 +42,15 @@ std::string utc_now() {
   return buf;
 }
 
+/// A text attribute, or `fallback` when it is missing or cannot be read.
+std::string text_attr_or(hid_t obj, const std::string& name, const std::string& fallback) {
+  try {
+    return has_attr(obj, name) ? get_attr_string(obj, name) : fallback;
+  } catch (const CubeError&) {
+    return fallback;
+  }
+}
+
 /// The scenario checksum and completeness of an existing cube, or throws
 /// InputError when it is not a readable covergrid cube.
 struct Existing {
@@ -938,17 +947,19 @@ CubeReader::CubeReader(const std::string& path) : path_(path) {
   }
   const hid_t root = file_.id();
   try {
-    if (!has_attr(root, "format") || get_attr_string(root, "format") != cube_format_name)
+    if (!has_attr(root, "format"))
       throw InputError(path, "is an HDF5 file but not a covergrid cube (no format = \"covergrid-cube\")");
-    const std::int64_t version = get_attr_int(root, "format_version");
-    if (version != cube_format_version)
+    // The version first: older formats stored text where this one does not
+    // read it (see get_attr_string).
+    const std::int64_t version = has_attr(root, "format_version") ? get_attr_int(root, "format_version") : 0;
+    if (version != cube_format_version && version > 0)
       throw InputError(
-          path,
-          fmt::format("has cube format version {} (written by covergrid {}); this covergrid reads only "
-                      "version {}: run its scenario again with this covergrid, or read it with the one "
-                      "that wrote it",
-                      version, has_attr(root, "tool_version") ? get_attr_string(root, "tool_version") : "?",
-                      cube_format_version));
+          path, fmt::format("has cube format version {} (written by covergrid {}); this covergrid reads only "
+                            "version {}: run its scenario again with this covergrid, or read it with the one "
+                            "that wrote it",
+                            version, text_attr_or(root, "tool_version", "?"), cube_format_version));
+    if (get_attr_string(root, "format") != cube_format_name || version == 0)
+      throw InputError(path, "is an HDF5 file but not a covergrid cube (no format = \"covergrid-cube\")");
     validate();
   } catch (const CubeError& e) {
     throw InputError(path, std::string("is damaged or incomplete as a cube: ") + e.what());

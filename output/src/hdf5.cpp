@@ -1,12 +1,18 @@
 #include "covergrid/output/hdf5.hpp"
 
+#include <fcntl.h>
+#include <fmt/format.h>
 #include <hdf5_hl.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #include <algorithm>
 #include <cerrno>
 #include <cmath>
+#include <cstdint>
 #include <cstring>
 #include <limits>
+#include <map>
 #include <string_view>
 #include <utility>
 
@@ -123,6 +129,11 @@ File File::create(const std::string& path) {
   check(H5Pset_file_space_strategy(fcpl.get(), H5F_FSPACE_STRATEGY_NONE, 0, 1),
         "set the file-space strategy");
   Handle fapl = file_access();
+  // The HDF5 1.8 file format at least: object headers and B-trees carry
+  // checksums (damage is reported, not followed), and an attribute larger
+  // than 64 KiB (a long scenario text) goes to dense storage. netCDF-4
+  // readers of HDF5 1.10 read it.
+  check(H5Pset_libver_bounds(fapl.get(), H5F_LIBVER_V18, H5F_LIBVER_V110), "set the file-format bounds");
   f.h_ = Handle(check_id(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, fcpl.get(), fapl.get()), "create " + path),
                 H5Fclose);
   return f;
@@ -237,6 +248,20 @@ Handle utf8_string_type() {
   return t;
 }
 
+/// A fixed-length, null-terminated UTF-8 string type of `size` bytes (the
+/// longest text plus its terminator). Attributes are stored so: their text
+/// sits in the object header, not in a global heap, whose reader in HDF5
+/// 1.10 loops forever on a damaged collection (an object of size 0 at index
+/// 0 never advances its walk); netCDF-4 readers take such attributes as
+/// text (NC_CHAR).
+Handle fixed_string_type(std::size_t size) {
+  Handle t(check_id(H5Tcopy(H5T_C_S1), "copy the string type"), H5Tclose);
+  check(H5Tset_size(t.get(), std::max<std::size_t>(size, 1)), "make a fixed-length string type");
+  check(H5Tset_strpad(t.get(), H5T_STR_NULLTERM), "set null-terminated strings");
+  check(H5Tset_cset(t.get(), H5T_CSET_UTF8), "set UTF-8");
+  return t;
+}
+
 template <class T>
 std::vector<T> read_plain(hid_t parent, const std::string& name, hid_t mem_type) {
   Handle d = open_dataset(parent, name);
@@ -320,10 +345,122 @@ std::vector<std::int64_t> read_int64s(hid_t parent, const std::string& name) {
 std::vector<std::uint8_t> read_u8s(hid_t parent, const std::string& name) {
   return read_plain<std::uint8_t>(parent, name, H5T_NATIVE_UINT8);
 }
+namespace {
+
+/// Reads `size` bytes at `offset` of an open descriptor; false when the file
+/// ends before.
+bool read_exactly(int fd, std::uint64_t offset, std::size_t size, unsigned char* out) {
+  while (size > 0) {
+    const ssize_t k = ::pread(fd, out, size, static_cast<off_t>(offset));
+    if (k < 0 && errno == EINTR) continue;
+    if (k <= 0) return false;
+    out += k;
+    size -= static_cast<std::size_t>(k);
+    offset += static_cast<std::uint64_t>(k);
+  }
+  return true;
+}
+
+std::uint64_t little_endian(const unsigned char* p, std::size_t bytes) {
+  std::uint64_t v = 0;
+  for (std::size_t i = bytes; i-- > 0;) v = (v << 8) | p[i];
+  return v;
+}
+
+/// Proves that every string of a variable-length string dataset can be read
+/// without HDF5 looping (see fixed_string_type): the dataset's stored
+/// elements (length, collection address, index) are read from the file, and
+/// each global-heap collection they name is walked here with bounds, as
+/// HDF5 1.10's H5HG__cache_heap_deserialize walks it, refusing what would
+/// stall that walk (an object that does not advance it) or run off the
+/// collection or the file. Throws CubeError on damage. Written here because
+/// HDF5 offers no bounded way to read such data: the format is HDF5's own
+/// (File Format Specification 2.0, sections III.E "Global Heap" and
+/// "Disk Format: Level 2A1"), read with pread only.
+void check_global_heap(hid_t dataset, const std::string& name, hsize_t count) {
+  const haddr_t data = H5Dget_offset(dataset);
+  if (data == HADDR_UNDEF) throw CubeError("dataset " + name + " is not stored as one contiguous block");
+  Handle file(check_id(H5Iget_file_id(dataset), "get the file of " + name), H5Fclose);
+  Handle fcpl(check_id(H5Fget_create_plist(file.get()), "get the creation list"), H5Pclose);
+  std::size_t sizeof_addr = 0, sizeof_size = 0;
+  check(H5Pget_sizes(fcpl.get(), &sizeof_addr, &sizeof_size), "read the file's address size");
+  if (sizeof_addr != 8 || sizeof_size != 8)
+    throw CubeError(fmt::format("the file uses {}-byte addresses; covergrid writes 8", sizeof_addr));
+  const ssize_t name_size = H5Fget_name(file.get(), nullptr, 0);
+  if (name_size <= 0) throw CubeError("cannot read the file name of " + name);
+  std::string path(static_cast<std::size_t>(name_size) + 1, '\0');
+  H5Fget_name(file.get(), path.data(), path.size());
+  path.resize(static_cast<std::size_t>(name_size));
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) throw CubeError(fmt::format("cannot open {}: {}", path, std::strerror(errno)));
+  struct Closer {
+    int fd;
+    ~Closer() { ::close(fd); }
+  } closer{fd};
+  struct stat st {};
+  if (::fstat(fd, &st) != 0) throw CubeError("cannot read the size of " + path);
+  const std::uint64_t file_size = static_cast<std::uint64_t>(st.st_size);
+
+  // One stored element: 4-byte length, 8-byte collection address, 4-byte index.
+  constexpr std::size_t element = 16;
+  if (count > (file_size / element))
+    throw CubeError("dataset " + name + " declares more strings than the file holds");
+  std::vector<unsigned char> elements(static_cast<std::size_t>(count) * element);
+  if (!read_exactly(fd, data, elements.size(), elements.data()))
+    throw CubeError("dataset " + name + " runs past the end of the file");
+
+  // Collection address -> (index -> object size), each collection walked once.
+  std::map<std::uint64_t, std::map<std::uint64_t, std::uint64_t>> collections;
+  constexpr std::uint64_t header = 16, object_header = 16, max_collection = std::uint64_t{1} << 26;
+  for (hsize_t i = 0; i < count; ++i) {
+    const unsigned char* e = elements.data() + i * element;
+    const std::uint64_t length = little_endian(e, 4), address = little_endian(e + 4, 8),
+                        index = little_endian(e + 12, 4);
+    if (length == 0 && address == 0) continue;  // an empty (null) string: no heap object
+    auto found = collections.find(address);
+    if (found == collections.end()) {
+      unsigned char head[header];
+      if (address > file_size || !read_exactly(fd, address, header, head))
+        throw CubeError(fmt::format("dataset {}: string {} points past the end of the file", name, i));
+      const std::uint64_t size = little_endian(head + 8, 8);
+      if (std::memcmp(head, "GCOL", 4) != 0 || head[4] != 1 || size < header || size > max_collection ||
+          size > file_size - address)
+        throw CubeError(fmt::format("dataset {}: the global heap holding string {} is damaged", name, i));
+      std::vector<unsigned char> heap(static_cast<std::size_t>(size));
+      if (!read_exactly(fd, address, heap.size(), heap.data()))
+        throw CubeError(fmt::format("dataset {}: the global heap holding string {} is cut short", name, i));
+      std::map<std::uint64_t, std::uint64_t> objects;
+      std::uint64_t at = header;
+      while (at < size) {
+        if (size - at < object_header) break;  // too small for an object: free space
+        const std::uint64_t id = little_endian(&heap[at], 2), bytes = little_endian(&heap[at + 8], 8);
+        // HDF5 advances by the free-space object's size (index 0) or by the
+        // header plus the size rounded up to 8; zero never advances.
+        const std::uint64_t need =
+            id == 0 ? bytes : (bytes > size ? size : object_header + ((bytes + 7) & ~7ull));
+        if (need == 0 || need > size - at)
+          throw CubeError(fmt::format("dataset {}: the global heap holding string {} is damaged", name, i));
+        if (id != 0) objects[id] = bytes;
+        at += need;
+      }
+      found = collections.emplace(address, std::move(objects)).first;
+    }
+    const auto object = found->second.find(index);
+    if (object == found->second.end() || object->second < length)
+      throw CubeError(fmt::format("dataset {}: string {} is missing from its global heap", name, i));
+  }
+}
+
+}  // namespace
+
 std::vector<std::string> read_strings(hid_t parent, const std::string& name) {
   Handle d = open_dataset(parent, name);
   const auto dims = shape(d.get());
   if (dims.size() != 1) throw CubeError("dataset " + name + " is not one-dimensional");
+  Handle ftype(check_id(H5Dget_type(d.get()), "get the type of " + name), H5Tclose);
+  if (H5Tget_class(ftype.get()) != H5T_STRING || H5Tis_variable_str(ftype.get()) <= 0)
+    throw CubeError("dataset " + name + " does not hold variable-length text");
+  if (dims[0] > 0) check_global_heap(d.get(), name, dims[0]);
   Handle type = utf8_string_type();
   std::vector<char*> raw(dims[0], nullptr);
   if (!raw.empty())
@@ -349,6 +486,10 @@ void read_every_chunk(hid_t dataset, const std::string& name) {
     check(H5Pget_chunk(dcpl.get(), static_cast<int>(rank), chunk.data()), "get the chunk shape of " + name);
   Handle ftype(check_id(H5Dget_type(dataset), "get the type of " + name), H5Tclose);
   const bool vlen_string = H5Tis_variable_str(ftype.get()) > 0;
+  if (vlen_string) {
+    if (rank != 1) throw CubeError("dataset " + name + " holds text but is not one-dimensional");
+    check_global_heap(dataset, name, dims[0]);
+  }
   Handle mtype = vlen_string ? utf8_string_type()
                              : Handle(check_id(H5Tget_native_type(ftype.get(), H5T_DIR_DEFAULT),
                                                "get the memory type of " + name),
@@ -406,13 +547,12 @@ void replace_attr(hid_t obj, const std::string& name) {
 
 void set_attr(hid_t obj, const std::string& name, const std::string& value) {
   replace_attr(obj, name);
-  Handle type = utf8_string_type();
+  Handle type = fixed_string_type(value.size() + 1);
   Handle space = scalar_space();
   Handle a(check_id(H5Acreate2(obj, name.c_str(), type.get(), space.get(), H5P_DEFAULT, H5P_DEFAULT),
                     "create attribute " + name),
            H5Aclose);
-  const char* p = value.c_str();
-  check(H5Awrite(a.get(), type.get(), &p), "write attribute " + name);
+  check(H5Awrite(a.get(), type.get(), value.c_str()), "write attribute " + name);
 }
 
 void set_attr(hid_t obj, const std::string& name, std::int64_t value) {
@@ -435,15 +575,17 @@ void set_attr(hid_t obj, const std::string& name, double value) {
 
 void set_attr(hid_t obj, const std::string& name, const std::vector<std::string>& values) {
   replace_attr(obj, name);
-  Handle type = utf8_string_type();
+  std::size_t width = 1;
+  for (const auto& v : values) width = std::max(width, v.size() + 1);
+  Handle type = fixed_string_type(width);
   const hsize_t dims[1] = {values.size()};
   Handle space(check_id(H5Screate_simple(1, dims, nullptr), "make a dataspace"), H5Sclose);
   Handle a(check_id(H5Acreate2(obj, name.c_str(), type.get(), space.get(), H5P_DEFAULT, H5P_DEFAULT),
                     "create attribute " + name),
            H5Aclose);
-  std::vector<const char*> ptrs;
-  for (const auto& s : values) ptrs.push_back(s.c_str());
-  check(H5Awrite(a.get(), type.get(), ptrs.data()), "write attribute " + name);
+  std::string packed(width * values.size(), '\0');
+  for (std::size_t i = 0; i < values.size(); ++i) values[i].copy(packed.data() + i * width, values[i].size());
+  check(H5Awrite(a.get(), type.get(), packed.data()), "write attribute " + name);
 }
 
 bool has_attr(hid_t obj, const std::string& name) { return H5Aexists(obj, name.c_str()) > 0; }
@@ -452,15 +594,17 @@ std::string get_attr_string(hid_t obj, const std::string& name) {
   Handle a(check_id(H5Aopen(obj, name.c_str(), H5P_DEFAULT), "open attribute " + name), H5Aclose);
   Handle ftype(check_id(H5Aget_type(a.get()), "get the type of attribute " + name), H5Tclose);
   if (H5Tget_class(ftype.get()) != H5T_STRING) throw CubeError("attribute " + name + " is not a string");
-  if (H5Tis_variable_str(ftype.get()) > 0) {
-    Handle type = utf8_string_type();
-    char* p = nullptr;
-    check(H5Aread(a.get(), type.get(), &p), "read attribute " + name);
-    std::string out = p ? p : "";
-    H5free_memory(p);
-    return out;
-  }
+  // A variable-length string's text lies in a global heap, which HDF5 1.10
+  // may walk forever when damaged: such an attribute is never read (the
+  // cube formats up to 2 wrote them; this one writes fixed-length text).
+  if (H5Tis_variable_str(ftype.get()) > 0)
+    throw CubeError("attribute " + name + " is a variable-length string (cube format 2 or older)");
   const std::size_t size = H5Tget_size(ftype.get());
+  if (size == 0 || size > max_attribute_text)
+    throw CubeError(fmt::format("attribute {} declares {} bytes of text", name, size));
+  Handle space(check_id(H5Aget_space(a.get()), "get the dataspace of attribute " + name), H5Sclose);
+  if (H5Sget_simple_extent_npoints(space.get()) != 1)
+    throw CubeError("attribute " + name + " is not a single text");
   std::string out(size, '\0');
   check(H5Aread(a.get(), ftype.get(), out.data()), "read attribute " + name);
   return out.substr(0, out.find('\0'));

@@ -46,13 +46,16 @@ ShardHeader read_header(const std::string& path) {
   }
   const hid_t root = f.id();
   try {
-    if (!has_attr(root, "format") || get_attr_string(root, "format") != cube_format_name)
+    if (!has_attr(root, "format"))
       throw InputError(path, "is an HDF5 file but not a covergrid cube (no format = \"covergrid-cube\")");
-    const std::int64_t version = get_attr_int(root, "format_version");
-    if (version != cube_format_version)
+    // The version first: older formats stored text that this one does not read.
+    const std::int64_t version = has_attr(root, "format_version") ? get_attr_int(root, "format_version") : 0;
+    if (version > 0 && version != cube_format_version)
       throw InputError(path, fmt::format("has cube format version {}; this covergrid writes version {} "
                                          "(merge with the covergrid that ran the shards)",
                                          version, cube_format_version));
+    if (get_attr_string(root, "format") != cube_format_name || version == 0)
+      throw InputError(path, "is an HDF5 file but not a covergrid cube (no format = \"covergrid-cube\")");
     h.tool = get_attr_string(root, "tool_version");
     if (h.tool != tool_version)
       throw InputError(path, fmt::format("was written by covergrid {}; this is covergrid {} (merge with the "

@@ -10,6 +10,7 @@
 
 #include "covergrid/output/cube.hpp"
 #include "covergrid/output/hdf5.hpp"
+#include "covergrid/version.hpp"
 
 #include <catch2/catch.hpp>
 #include <fmt/format.h>
@@ -309,5 +310,52 @@ tables = ""
     CHECK(r.status == 2);
     CHECK_THAT(r.err, Catch::Contains(partial + ": is not complete"));
     CHECK_FALSE(fs::exists(html));
+  }
+}
+
+TEST_CASE("damaged cubes: a changed Monte Carlo coverage is found by inspect --pair's re-draw",
+          "[output][validation]") {
+  // In range, so the chunk checks pass; the run's own draws give another
+  // value. Was "internal error: re-drawn coverage differs" (exit 1).
+  Fixture fx;
+  const std::string cube =
+      fx.damaged("mc-changed", [&](const std::string& p) { poke(p, "/mc/coverage", 0.125); });
+  const auto r = call({"inspect", cube, "--pair", "wilson,wald"});
+  CHECK(r.status == 2);
+  CHECK(r.out.empty());
+  CHECK(lines(r.err) == 1);
+  CHECK_THAT(r.err, Catch::Contains(cube + ": is damaged or altered: dataset /mc/coverage holds 0.125"));
+}
+
+TEST_CASE("cubes of format 2 and variable-length text attributes are refused without reading the text",
+          "[output][validation]") {
+  // Format 3 stores text attributes as fixed-length strings: a damaged
+  // variable-length string made HDF5 1.10 loop forever in its global heap.
+  Fixture fx;
+  const std::string old = fx.damaged("format-2", [&](const std::string& p) {
+    o::File f = o::File::open(p, true);
+    o::set_attr(f.id(), "format_version", std::int64_t{2});
+  });
+  auto r = call({"inspect", old});
+  CHECK(r.status == 2);
+  CHECK_THAT(r.err,
+             Catch::Contains(old + ": has cube format version 2") &&
+                 Catch::Contains("reads only version " + std::to_string(covergrid::cube_format_version)));
+  const std::string vlen = fx.damaged("vlen-format", [&](const std::string& p) {
+    o::File f = o::File::open(p, true);
+    o::check(H5Adelete(f.id(), "format"), "delete format");
+    o::Handle type(H5Tcopy(H5T_C_S1), H5Tclose);
+    H5Tset_size(type.get(), H5T_VARIABLE);
+    o::Handle space(H5Screate(H5S_SCALAR), H5Sclose);
+    o::Handle a(H5Acreate2(f.id(), "format", type.get(), space.get(), H5P_DEFAULT, H5P_DEFAULT), H5Aclose);
+    const char* text = "covergrid-cube";
+    o::check(H5Awrite(a.get(), type.get(), &text), "write format");
+  });
+  for (const auto& args : std::vector<std::vector<std::string>>{{"inspect", vlen}, {"rank", vlen}}) {
+    r = call(args);
+    CHECK(r.status == 2);
+    CHECK(lines(r.err) == 1);
+    CHECK_THAT(r.err, Catch::Contains(vlen + ": ") &&
+                          Catch::Contains("attribute format is a variable-length string"));
   }
 }

@@ -11,6 +11,7 @@
 
 #include <cmath>
 #include <memory>
+#include <sstream>
 
 namespace covergrid::cli {
 
@@ -58,13 +59,17 @@ int cmd_inspect(const std::string& path, std::ostream& out) {
 /// the cube's own scenario and seed (the streams are counter-based, so the
 /// draws are exactly the run's; the marginal coverages are checked against
 /// the cube bit for bit).
-int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::ostream& out) {
+int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::ostream& final_out) {
+  // Written to standard output only when all of it is computed: a damaged
+  // cube found part-way gives its one-line refusal and no partial table.
+  std::ostringstream out;
   const auto comma = pair.find(',');
   if (comma == std::string::npos || comma == 0 || comma + 1 == pair.size())
     throw InputError("--pair", "give two method labels separated by a comma, e.g. --pair wilson,wald");
   const std::string label_a = pair.substr(0, comma), label_b = pair.substr(comma + 1);
   output::CubeReader cube(path);  // validates the layout, the replicate counts among it
   cube.require_whole();
+  cube.verify();  // every chunk's checksum and range before anything is printed
   if (!cube.has_mc())
     throw InputError(path, "holds no Monte Carlo results (the scenario had replicates = 0)");
   const engine::Scenario s =
@@ -112,9 +117,13 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
                                     n, s.p[pi]));
             const auto c = engine::paired_difference(s.seed, model, n, pi, s.p[pi],
                                                      static_cast<std::uint64_t>(reps[pi]), ta, tb);
+            // The draws are the run's own, so a difference means the stored
+            // value was changed after the run: damage or alteration.
             if (c.coverage_a != stored_a[pi])
-              throw std::runtime_error(
-                  fmt::format("re-drawn coverage differs from the cube at n = {}, p = {}", n, s.p[pi]));
+              throw InputError(path,
+                               fmt::format("is damaged or altered: dataset /mc/coverage holds {} for {} "
+                                           "at n = {}, p = {}, but the run's own draws give {}",
+                                           stored_a[pi], label_a, n, s.p[pi], c.coverage_a));
             if (csv)
               out << fmt::format("{},{},{},{},{},{},{},{},{},{}\n", s.models[model].label,
                                  methods::side_name(s.sides[side]), output::csv_number(s.levels[level]), n,
@@ -136,6 +145,7 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
     out << "\nThe standard error of each difference comes from the discordant replicates (one method "
            "covers,\n"
            "the other does not); --csv gives every (n, p).\n";
+  final_out << out.str();
   return exit_ok;
 }
 

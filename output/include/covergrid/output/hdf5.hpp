@@ -132,7 +132,12 @@ void read_every_chunk(hid_t dataset, const std::string& name);
 /// The paths of every dataset in the file, in name order ("/exact/coverage").
 std::vector<std::string> dataset_paths(hid_t file);
 
-// Attributes on any object.
+/// The longest text attribute a reader accepts (bytes): a scenario text of
+/// more than this is refused, and a damaged size cannot make a read allocate.
+inline constexpr std::size_t max_attribute_text = std::size_t{1} << 24;
+
+// Attributes on any object. Text attributes are written as fixed-length
+// UTF-8 strings; a variable-length one is refused when read (CubeError).
 void set_attr(hid_t obj, const std::string& name, const std::string& value);
 void set_attr(hid_t obj, const std::string& name, std::int64_t value);
 void set_attr(hid_t obj, const std::string& name, double value);
