@@ -303,6 +303,22 @@ std::optional<JournalHeader> read_journal_header(const std::string& path) {
   return h;
 }
 
+/// Whether `path` is a journal file cut off before its header was whole: no
+/// longer than a header and, as far as it goes, the journal mark.
+bool journal_is_stub(const std::string& path) {
+  std::error_code ec;
+  if (!fs::is_regular_file(path, ec)) return false;
+  const auto size = fs::file_size(path, ec);
+  if (ec || size >= journal_header_size) return false;
+  char head[8] = {};
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) return false;
+  const std::size_t want = std::min<std::size_t>(static_cast<std::size_t>(size), 8);
+  const bool read_ok = want == 0 || read_at(fd, head, want, 0);
+  ::close(fd);
+  return read_ok && std::memcmp(head, journal_magic, want) == 0;
+}
+
 }  // namespace
 
 std::string journal_path(const std::string& cube_path) { return cube_path + ".journal"; }
@@ -310,7 +326,26 @@ std::string journal_path(const std::string& cube_path) { return cube_path + ".jo
 OutputState inspect_output(const engine::Scenario& scenario, bool overwrite, const std::string& shard) {
   const std::string& path = scenario.cube_path;
   const std::string journal = journal_path(path);
-  if (overwrite) return OutputState::fresh;
+  // A journal shorter than its header holds no chunk: the run that created
+  // it stopped before its header was written (a full disk). It is removed,
+  // so that the same command starts the run again instead of refusing it.
+  if (journal_is_stub(journal)) {
+    std::error_code ignored;
+    fs::remove(journal, ignored);
+  }
+  if (overwrite) {
+    // --overwrite replaces only files covergrid wrote: a cube (an HDF5 file)
+    // and a journal of ours, never a text file or someone else's data.
+    if (const std::string problem = engine::replacement_problem(path, {}, engine::Replaces::cube);
+        !problem.empty())
+      throw InputError(path, problem);
+    std::error_code ec;
+    if (fs::is_regular_file(journal, ec) && fs::file_size(journal, ec) > 0 && !read_journal_header(journal))
+      throw InputError(journal,
+                       "exists and is not a covergrid journal; --overwrite replaces only files "
+                       "covergrid wrote: remove it yourself");
+    return OutputState::fresh;
+  }
   if (fs::exists(path)) {
     const Existing e = read_existing(path);
     if (e.sha != scenario.sha256)
@@ -431,7 +466,7 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
       return "";
     };
     std::uint64_t at = journal_header_size;
-    std::size_t dropped = 0, regions = 0;
+    std::size_t dropped = 0, regions = 0, not_records = 0;
     std::string first_reason;
     std::uint64_t first_at = 0;
     while (at < file_end) {
@@ -449,6 +484,13 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
         first_at = at;
       }
       ++dropped;
+      // A place that starts with a record mark, or lies between records, was
+      // a record (its chunk is lost); bytes after the last record that do not
+      // start with a mark (garbage appended to the file) held no chunk.
+      std::uint32_t mark_at = 0;
+      char mark_bytes[4];
+      if (read_at(fd_, mark_bytes, 4, at)) std::memcpy(&mark_at, mark_bytes, 4);
+      const bool starts_as_record = mark_at == record_magic;
       std::uint64_t next = file_end;
       for (std::uint64_t q = at + 1; q + record_header_size <= file_end;) {
         const std::size_t window = static_cast<std::size_t>(std::min<std::uint64_t>(1 << 20, file_end - q));
@@ -470,6 +512,7 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
         if (found || window < 4) break;
         q += window - 3;  // a mark may straddle two windows
       }
+      if (!starts_as_record && next == file_end) ++not_records;
       at = next;
       if (next == file_end) break;
     }
@@ -490,8 +533,9 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
       resume_note_ = fmt::format(
           "{}: dropped {} damaged record{} ({} chunk{} to compute again): at byte {}, {}{}; {} chunk{} "
           "kept",
-          journal_path_, dropped, dropped == 1 ? "" : "s", dropped, dropped == 1 ? "" : "s", first_at,
-          first_reason, regions > 1 ? fmt::format(", and {} more damaged places", regions - 1) : "", kept,
+          journal_path_, dropped, dropped == 1 ? "" : "s", dropped - not_records,
+          dropped - not_records == 1 ? "" : "s", first_at, first_reason,
+          regions > 1 ? fmt::format(", and {} more damaged places", regions - 1) : "", kept,
           kept == 1 ? "" : "s");
     }
     if (::ftruncate(fd_, static_cast<off_t>(end_)) != 0)

@@ -191,6 +191,50 @@ std::vector<double> axis_values(const Context& ctx, const toml::node& node, cons
 
 }  // namespace
 
+namespace {
+
+/// Refuses outputs that would land on an input or on each other (the cube
+/// written over the scenario file, `cube = "t-summary.csv"` beside `tables =
+/// "t"`), naming both: compared as absolute paths with symbolic links of
+/// their existing parts resolved.
+void check_collisions(const Context& ctx, const toml::table& root, const engine::Scenario& s) {
+  struct Output {
+    std::string what;
+    const char* key;  // the [output] key that names it, or nullptr for an input
+    std::string path;
+  };
+  std::vector<Output> files;
+  if (!s.source_name.empty() && s.source_name.front() != '<')
+    files.push_back({"the scenario file itself", nullptr, s.source_name});
+  files.push_back({fmt::format("[output] cube = \"{}\"", s.cube_path), "cube", s.cube_path});
+  for (const char* suffix : {".journal", ".partial"})
+    files.push_back({fmt::format("the file {}{} written while the cube is in progress", s.cube_path, suffix),
+                     "cube", s.cube_path + suffix});
+  if (!s.tables_prefix.empty())
+    for (const char* table : {"-summary.csv", "-ranking.csv", "-summary.md"})
+      for (const char* suffix : {"", ".partial"})
+        files.push_back({fmt::format("the table {}{}{} of [output] tables = \"{}\"", s.tables_prefix, table,
+                                     suffix, s.tables_prefix),
+                         "tables", s.tables_prefix + table + suffix});
+  std::vector<std::string> canonical;
+  for (const auto& f : files) {
+    std::error_code ec;
+    fs::path c = fs::weakly_canonical(fs::absolute(f.path, ec), ec);
+    canonical.push_back(ec ? fs::absolute(f.path).lexically_normal().string() : c.string());
+  }
+  for (std::size_t i = 0; i < files.size(); ++i)
+    for (std::size_t j = 0; j < i; ++j) {
+      if (canonical[i] != canonical[j] || files[i].key == files[j].key) continue;
+      const toml::node* out_node = root.get("output");
+      const toml::node* at =
+          out_node && out_node->is_table() ? out_node->as_table()->get(files[i].key) : nullptr;
+      ctx.fail(at,
+               fmt::format("{} is the same file as {}; choose another name", files[i].what, files[j].what));
+    }
+}
+
+}  // namespace
+
 engine::Scenario load_scenario_text(std::string_view text, const std::string& source_name,
                                     const std::string& base_dir, bool check_output_folders) {
   const Context ctx(source_name);
@@ -427,6 +471,7 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   if (check_output_folders) {
     check_location(s.cube_path, "cube", s.cube_path);
     check_location(s.tables_prefix, "tables", s.tables_prefix + "-summary.csv");
+    check_collisions(ctx, root, s);
   }
   return s;
 }

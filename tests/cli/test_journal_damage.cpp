@@ -264,3 +264,46 @@ TEST_CASE("a damaged journal header is called damaged, and --overwrite starts ag
   REQUIRE(run(dir.path(), {"run", "r.toml", "--quiet", "--overwrite"}) == 0);
   same_datasets(single.file("r.h5"), dir.file("r.h5"));
 }
+
+TEST_CASE("a journal left empty by a full disk is started again, not a dead end",
+          "[cli][e2e][resume][disk]") {
+  // Was: the rerun refused it ("not a covergrid journal; use --overwrite").
+  ScratchDir single("stub-single"), dir("stub");
+  write_scenario(single.path());
+  write_scenario(dir.path());
+  REQUIRE(run(single.path(), {"run", "r.toml", "--quiet"}) == 0);
+  // No byte can be written: the journal is created, its header is not.
+  CHECK(run_limited(dir.path(), 0, "run r.toml --quiet") == 2);
+  REQUIRE(fs::exists(dir.path() / "r.h5.journal"));
+  REQUIRE(fs::file_size(dir.path() / "r.h5.journal") == 0);
+  const int status = run(dir.path(), {"run", "r.toml", "--quiet"});
+  INFO(stderr_of(dir.path()));
+  REQUIRE(status == 0);
+  same_datasets(single.file("r.h5"), dir.file("r.h5"));
+  // A header cut short the same way (the journal mark, then nothing).
+  ScratchDir cut("stub-cut");
+  write_scenario(cut.path());
+  write_bytes(cut.path() / "r.h5.journal", std::string("CGJOUR"));
+  REQUIRE(run(cut.path(), {"run", "r.toml", "--quiet"}) == 0);
+  same_datasets(single.file("r.h5"), cut.file("r.h5"));
+}
+
+TEST_CASE("garbage appended to a journal costs no chunk and is counted so", "[cli][e2e][resume][journal]") {
+  // Was: "1 chunk to compute again" although every chunk was kept.
+  ScratchDir single("garbage-single"), source("garbage-source"), dir("garbage");
+  write_scenario(single.path(), rows_text);
+  write_scenario(source.path(), rows_text);
+  write_scenario(dir.path(), rows_text);
+  REQUIRE(run(single.path(), {"run", "r.toml", "--quiet"}) == 0);
+  REQUIRE(run_limited(source.path(), 1024, "run r.toml --quiet") == 2);
+  const std::string whole = read_bytes(source.path() / "r.h5.journal");
+  std::uint64_t end = 0;
+  const auto records = record_offsets(whole, end);
+  write_bytes(dir.path() / "r.h5.journal", whole.substr(0, end) + std::string(300, 'g'));
+  REQUIRE(run(dir.path(), {"run", "r.toml", "--quiet"}) == 0);
+  const std::string text = stderr_of(dir.path());
+  INFO(text);
+  CHECK(text.find("dropped 1 damaged record (0 chunks to compute again)") != std::string::npos);
+  CHECK(text.find(fmt::format("; {} chunks kept", records.size())) != std::string::npos);
+  same_datasets(single.file("r.h5"), dir.file("r.h5"));
+}

@@ -241,12 +241,18 @@ TEST_CASE("merge refuses foreign, mismatched, overlapping, missing and incomplet
   // The output is never an input and is replaced only with --overwrite.
   const auto in_place = call({"merge", s1, s2, "-o", s1});
   CHECK(in_place.status == 2);
-  CHECK(in_place.err.find("is one of the shard cubes") != std::string::npos);
+  CHECK(in_place.err.find("is the same file as the input " + s1) != std::string::npos);
   std::ofstream(out) << "keep me\n";
   const auto kept = call({"merge", s1, s2, "-o", o_});
   CHECK(kept.status == 2);
   CHECK(kept.err.find(o_ + ": exists") != std::string::npos);
   CHECK(slurp(out) == "keep me\n");
+  // --overwrite replaces only a cube (an HDF5 file), never a text file.
+  const auto text_kept = call({"merge", s1, s2, "-o", o_, "--overwrite", "--quiet", "--no-tables"});
+  CHECK(text_kept.status == 2);
+  CHECK(text_kept.err.find("covergrid replaces only cubes") != std::string::npos);
+  CHECK(slurp(out) == "keep me\n");
+  fs::copy_file(s1, out, fs::copy_options::overwrite_existing);
   const auto replaced = call({"merge", s1, s2, "-o", o_, "--overwrite", "--quiet", "--no-tables"});
   INFO(replaced.err);
   CHECK(replaced.status == 0);

@@ -78,8 +78,10 @@ int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out) {
   else
     throw InputError("--format", fmt::format("\"{}\" is not one of text, csv, json", a.format));
   if (!a.output.empty())
-    if (const std::string problem = engine::output_location_problem(a.output); !problem.empty())
-      throw InputError("-o " + a.output, problem);
+    for (const std::string& problem :
+         {engine::output_location_problem(a.output),
+          engine::replacement_problem(a.output, {a.claims_file}, engine::Replaces::text)})
+      if (!problem.empty()) throw InputError("-o " + a.output, problem);
   std::vector<engine::Claim> claims;
   if (!a.claims_file.empty()) {
     for (const char* opt : {"--method", "--level", "--n", "--p", "--side", "--tolerance", "--about",

@@ -24,8 +24,9 @@ struct MergeArgs {
 
 int cmd_merge(const MergeArgs& a, std::ostream& out, std::ostream& err) {
   namespace fs = std::filesystem;
-  if (const std::string problem = engine::output_location_problem(a.out); !problem.empty())
-    throw InputError("-o " + a.out, problem);
+  for (const std::string& problem : {engine::output_location_problem(a.out),
+                                     engine::replacement_problem(a.out, a.shards, engine::Replaces::cube)})
+    if (!problem.empty()) throw InputError("-o " + a.out, problem);
   const std::string out_dir = fs::path(a.out).parent_path().string();
   engine::Scenario scenario;
   const auto loader = [&](const std::string& text, const std::string& name) {

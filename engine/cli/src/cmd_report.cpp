@@ -29,8 +29,9 @@ std::string default_html_path(const std::string& cube) {
 int cmd_report(const ReportArgs& a, std::ostream& out) {
   const std::string target = a.html.empty() ? default_html_path(a.cube) : a.html;
   // Checked first: a page that cannot be written is bad input before any work.
-  if (const std::string problem = engine::output_location_problem(target); !problem.empty())
-    throw InputError(a.html.empty() ? target : "-o " + target, problem);
+  for (const std::string& problem : {engine::output_location_problem(target),
+                                     engine::replacement_problem(target, {a.cube}, engine::Replaces::text)})
+    if (!problem.empty()) throw InputError(a.html.empty() ? target : "-o " + target, problem);
   const output::CubeReader cube(a.cube);  // validates the layout (exit 2 naming the dataset)
   cube.require_whole();                   // a shard or an unfinished run would draw NaN
   cube.verify();                          // every chunk's checksum, also of datasets the page does not draw

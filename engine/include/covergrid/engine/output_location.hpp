@@ -5,6 +5,7 @@
 /// -o) calls it first, so a run never computes for an hour and then finds it
 /// cannot write.
 #include <string>
+#include <vector>
 
 namespace covergrid::engine {
 
@@ -16,5 +17,20 @@ namespace covergrid::engine {
 /// "base.toml is a file, not a folder". Probes by creating and removing a
 /// uniquely named empty file in the folder; leaves nothing behind.
 std::string output_location_problem(const std::string& path);
+
+/// What an output replaces when a file is already at its path.
+enum class Replaces {
+  text,  // a table, verdict or report: any existing file but an HDF5 one
+  cube,  // a cube (run --overwrite, merge --overwrite): only an HDF5 file
+};
+
+/// Empty when writing `path` destroys nothing covergrid must keep; else why
+/// not: `path` is the same file as one of `inputs` (compared with symbolic
+/// links resolved), or an existing file of the other kind than `replaces`
+/// allows (`audit -o CUBE.h5` would put verdict text in place of a cube;
+/// `run --overwrite` would put a cube in place of a text file it did not
+/// write).
+std::string replacement_problem(const std::string& path, const std::vector<std::string>& inputs,
+                                Replaces replaces);
 
 }  // namespace covergrid::engine
