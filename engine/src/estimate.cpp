@@ -24,6 +24,8 @@ constexpr std::size_t kSampled = 9, kMaxTimed = 4;
 // After the first chunk, calibration stops once it has done this share of
 // the run's estimated cost, so that a small run is not slowed by it.
 constexpr double kMaxShare = 0.02;
+// Replicates per cell in a calibration probe (see estimate_run).
+constexpr std::uint64_t kProbeReplicates = 64;
 
 // The cube's assembly from the journal at the end (deflate, one core):
 // about 12 s per GB of uncompressed data, measured on the project's
@@ -70,16 +72,27 @@ RunEstimate estimate_run(const Scenario& scenario, const Plan& plan, const std::
   std::sort(sample.begin(), sample.end(), [&](std::size_t a, std::size_t b) {
     return chunk_cost(scenario, plan.chunks[a]) < chunk_cost(scenario, plan.chunks[b]);
   });
+  // The timed work is a probe of each sampled chunk, never the chunk
+  // itself, so that its time is bounded whatever the grid: the chunk's first
+  // n row only, with at most kProbeReplicates replicates per cell (fixed,
+  // not adaptive). The cost model (chunk_cost) is linear in rows and in
+  // replicates, so the probes' seconds per unit of cost carry over to the
+  // whole run (replicates = 10^10 once made --dry-run compute for minutes).
+  Scenario probe_scenario = scenario;
+  probe_scenario.replicates = std::min<std::uint64_t>(scenario.replicates, kProbeReplicates);
+  probe_scenario.target_se = 0;
   const auto start = std::chrono::steady_clock::now();
   double timed_cost = 0, timed_seconds = 0;
   for (std::size_t id : sample) {
-    const double cost = chunk_cost(scenario, plan.chunks[id]);
+    ChunkSpec probe = plan.chunks[id];
+    probe.n_count = 1;
+    const double cost = chunk_cost(probe_scenario, probe);
     if (e.chunks_timed > 0 &&
         (timed_seconds >= kBudgetSeconds || e.chunks_timed >= kMaxTimed ||
          timed_cost >= kMaxShare * total_cost || cost * timed_seconds / timed_cost > kMaxChunkSeconds))
       break;
     const auto t0 = std::chrono::steady_clock::now();
-    const ChunkResult r = compute_chunk(scenario, plan.chunks[id]);
+    const ChunkResult r = compute_chunk(probe_scenario, probe);
     (void)r;
     timed_seconds += std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     timed_cost += cost;

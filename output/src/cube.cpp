@@ -651,8 +651,14 @@ void CubeWriter::finish() {
   // A failed assembly leaves no .partial behind; the journal stays, so that
   // the same command assembles the cube again once the cause is gone.
   try {
-    assemble_cube(temp_path_, {scenario_, plan_, shard_, [this](std::size_t id) { return read_record(id); },
+    assemble_cube(temp_path_, {scenario_, plan_, shard_,
+                               [this](std::size_t id) {
+                                 if (stop_ && stop_->load())
+                                   throw Interrupted("stopped while the cube was being assembled");
+                                 return read_record(id);
+                               },
                                split_stats_});
+    if (stop_ && stop_->load()) throw Interrupted("stopped while the cube was being assembled");
   } catch (const OutOfSpace&) {
     std::error_code ec;
     fs::remove(temp_path_, ec);

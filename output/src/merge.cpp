@@ -250,6 +250,11 @@ MergeReport merge_shards(const std::vector<std::string>& shards, const std::stri
                                            "(covergrid run SCENARIO --shard {})",
                                            h.spec.label(), h.spec.label()));
   }
+  // Every shard validated as a cube reader validates a cube (layout, axes,
+  // summaries, replicate counts) and every chunk read (checksums, metric
+  // ranges), before anything is created: a shard holding a coverage of 2
+  // or a bad replicate count is refused naming the file and the dataset.
+  for (const auto& h : headers) CubeReader(h.path).verify();
   // One scenario, one N.
   const ShardHeader& first = headers.front();
   for (const auto& h : headers) {

@@ -433,6 +433,22 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   } else {
     s.models.push_back({});
   }
+  // The grid's size, refused before anything is planned or allocated.
+  const double cells = static_cast<double>(s.n.size()) * static_cast<double>(s.p.size()) *
+                       static_cast<double>(s.models.size());
+  if (cells > max_grid_cells)
+    ctx.fail(grid.get("p"),
+             fmt::format("[grid] n ({} values) times p ({} values){} is {:.3g} cells; a scenario may have at "
+                         "most {:.0e}: split it into several scenarios",
+                         s.n.size(), s.p.size(),
+                         s.models.size() > 1 ? fmt::format(" times {} models", s.models.size()) : "", cells,
+                         max_grid_cells));
+  if (engine::combo_count(s) > max_combinations)
+    ctx.fail(grid.get("levels"),
+             fmt::format("[grid] levels ({}) times sides ({}) times the {} [[method]] entries are {} "
+                         "combinations; a scenario may have at most {}",
+                         s.levels.size(), s.sides.size(), s.methods.size(), engine::combo_count(s),
+                         max_combinations));
 
   // [output]
   std::string stem = fs::path(source_name).stem().string();

@@ -7,6 +7,7 @@
 #include "covergrid/output/tables.hpp"
 #include "covergrid/output/verdicts.hpp"
 #include "covergrid/scenarios/claims.hpp"
+#include "covergrid/scenarios/loader.hpp"
 
 #include <fmt/format.h>
 
@@ -52,6 +53,10 @@ engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
   else
     throw InputError("--about", fmt::format("\"{}\" is not one of minimum, mean", a.about));
   if (a.replicates < 0) throw InputError("--replicates", "must not be negative");
+  // One limit for options and claims files (and scenario files).
+  if (a.replicates > scenarios::max_replicates_per_cell)
+    throw InputError("--replicates", fmt::format("{} is above the largest supported count per cell ({})",
+                                                 a.replicates, scenarios::max_replicates_per_cell));
   c.replicates = static_cast<std::uint64_t>(a.replicates);
   if (a.p_points < 2 || static_cast<std::size_t>(a.p_points) > scenarios::max_claim_p_points)
     throw InputError("--p-points",

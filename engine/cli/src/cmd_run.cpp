@@ -213,6 +213,7 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
     stop_requested = false;
     auto old_int = std::signal(SIGINT, on_stop_signal);
     auto old_term = std::signal(SIGTERM, on_stop_signal);
+    writer.set_stop(&stop_requested);
     engine::RunReport report;
     try {
 #ifdef COVERGRID_MPI
@@ -221,6 +222,16 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
       else
 #endif
         report = engine::run_scenario(scenario, writer, options);
+    } catch (const output::Interrupted&) {
+      // Every chunk is in the journal; only the assembly was cut short.
+      std::signal(SIGINT, old_int);
+      std::signal(SIGTERM, old_term);
+      progress.done();
+      err << fmt::format(
+          "covergrid: stopped while the cube was being assembled; all {} chunks are saved in {}; run the "
+          "same command to resume (it assembles the cube)\n",
+          shard ? shard->chunks.size() : plan.chunks.size(), output::journal_path(scenario.cube_path));
+      return exit_internal;
     } catch (...) {
       std::signal(SIGINT, old_int);
       std::signal(SIGTERM, old_term);

@@ -25,6 +25,8 @@
 #include <array>
 #include <functional>
 #include <map>
+#include <atomic>
+#include <stdexcept>
 #include <string>
 #include <vector>
 
@@ -76,6 +78,14 @@ struct CubeContents {
 /// Writes the HDF5 cube to `path` (truncating it); complete = 1 at the end.
 void assemble_cube(const std::string& path, const CubeContents& contents);
 
+/// Thrown by CubeWriter::finish() when the stop flag (set_stop) was raised
+/// while the cube was being assembled: the .partial is removed and the
+/// journal kept whole, so the same command assembles the cube again.
+class Interrupted : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
 /// The ResultSink that writes the journal and, on finish(), the cube.
 class CubeWriter final : public engine::ResultSink {
  public:
@@ -99,6 +109,9 @@ class CubeWriter final : public engine::ResultSink {
   void write_grid_stats(engine::Source source, std::size_t model, std::size_t n_begin, std::size_t n_count,
                         const std::vector<double>& stats) override;
   void finish() override;
+  /// A flag (raised by SIGINT or SIGTERM) that finish() checks before each
+  /// chunk it assembles; it then throws Interrupted.
+  void set_stop(const std::atomic<bool>* stop) { stop_ = stop; }
   /// After a resume: one line saying which damaged journal records were
   /// dropped and why (their chunks are computed again); "" when none were.
   const std::string& resume_note() const { return resume_note_; }
@@ -118,6 +131,7 @@ class CubeWriter final : public engine::ResultSink {
   std::uint32_t version_ = 2;          // the journal's format version (records are written in it)
   std::string resume_note_;
   SplitStats split_stats_;
+  const std::atomic<bool>* stop_ = nullptr;
 };
 
 /// Throws the InputError for a dataset of `path` that cannot be read: a
