@@ -1,6 +1,7 @@
 #include "covergrid/output/cube.hpp"
 
 #include "covergrid/engine/output_location.hpp"
+#include "covergrid/engine/random.hpp"
 #include "covergrid/engine/error.hpp"
 #include "covergrid/engine/sha256.hpp"
 #include "covergrid/methods/registry.hpp"
@@ -21,6 +22,7 @@
 #include <ctime>
 #include <filesystem>
 #include <optional>
+#include <set>
 #include <string_view>
 
 namespace covergrid::output {
@@ -40,6 +42,26 @@ std::string utc_now() {
   char buf[32];
   std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
   return buf;
+}
+
+/// Whether `name` ("/group/dataset") is a dataset of the cube layout.
+bool known_dataset(const std::string& name) {
+  static const std::set<std::string> known = [] {
+    std::set<std::string> k;
+    for (const char* group : {"/summary/", "/exact/", "/mc/"})
+      for (const char* axis : {"model", "side", "level", "method", "n", "p"})
+        k.insert(std::string(group) + axis);
+    for (auto m : engine::metric_names) k.insert("/exact/" + std::string(m));
+    for (auto m : engine::mc_metric_names) k.insert("/mc/" + std::string(m));
+    k.insert("/mc/replicates");
+    for (auto s : engine::stat_names) k.insert("/summary/" + std::string(s));
+    for (std::size_t i = 0; i < engine::grid_stat_count; ++i)
+      k.insert("/summary/mc_" + std::string(engine::stat_names[i]));
+    k.insert("/progress/done");
+    k.insert("/progress/shard_chunks");
+    return k;
+  }();
+  return known.count(name) > 0;
 }
 
 /// A text attribute, or `fallback` when it is missing or cannot be read.
@@ -1069,11 +1091,35 @@ void CubeReader::validate() {
     return dims[0];
   };
 
-  // The axes, from /summary (always there); their values.
+  // Every dataset is one the layout knows: one it does not (declared with
+  // 2^40 elements, or 10^12 chunks) is refused, never read.
+  for (const auto& name : dataset_paths(root))
+    if (!known_dataset(name))
+      bad(fmt::format("dataset {} is not part of a covergrid cube (format {})", name, cube_format_version));
+
+  // The axes, from /summary (always there): their lengths bounded by what a
+  // scenario may ask for before any is read, so that a declared size can
+  // make nothing allocate; then their values.
+  std::array<hsize_t, 6> length{};
   for (std::size_t i = 0; i < axis_names.size(); ++i) {
     const Kind k = (i == 2 || i == 5) ? Kind::f64 : (i == 4 ? Kind::i64 : Kind::text);
-    axis_length(std::string("/summary/") + axis_names[i], k);
+    length[i] = axis_length(std::string("/summary/") + axis_names[i], k);
+    const hsize_t limit = i == 0   ? engine::max_stream_models
+                          : i == 1 ? 3
+                          : i < 4  ? engine::max_combinations
+                                   : engine::max_axis_values;
+    if (length[i] > limit)
+      bad(fmt::format("dataset /summary/{} declares {} values; a cube has at most {}", axis_names[i],
+                      length[i], limit));
   }
+  const double cells =
+      static_cast<double>(length[0]) * static_cast<double>(length[4]) * static_cast<double>(length[5]);
+  if (cells > engine::max_grid_cells)
+    bad(fmt::format("its axes declare {:.3g} (model, n, p) cells; a cube has at most {:.0e}", cells,
+                    engine::max_grid_cells));
+  if (length[1] * length[2] * length[3] > engine::max_combinations)
+    bad(fmt::format("its axes declare {} (side, level, method) combinations; a cube has at most {}",
+                    length[1] * length[2] * length[3], engine::max_combinations));
   models = read_strings(root, "/summary/model");
   sides = read_strings(root, "/summary/side");
   levels = read_doubles(root, "/summary/level");
@@ -1317,6 +1363,10 @@ std::size_t CubeReader::verify() const {
       const std::size_t rank = dims.size();
       std::size_t per_chunk = 1;
       for (auto c : chunk) per_chunk *= c;
+      if (per_chunk > max_chunk_elements)
+        throw CubeError(
+            fmt::format("its storage chunks declare {} elements each; covergrid writes at most {}", per_chunk,
+                        max_chunk_elements));
       std::vector<double> buf(per_chunk);
       std::vector<hsize_t> start(rank, 0), count(rank);
       for (bool more = rank > 0 && std::find(dims.begin(), dims.end(), 0) == dims.end(); more;) {

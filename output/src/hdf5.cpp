@@ -497,6 +497,10 @@ void read_every_chunk(hid_t dataset, const std::string& name) {
   const std::size_t item = vlen_string ? sizeof(char*) : H5Tget_size(mtype.get());
   std::size_t per_chunk = 1;
   for (auto v : chunk) per_chunk *= v;
+  if (per_chunk > max_chunk_elements)
+    throw CubeError(
+        fmt::format("dataset {} declares storage chunks of {} elements; covergrid writes at most {}", name,
+                    per_chunk, max_chunk_elements));
   std::vector<unsigned char> buf(per_chunk * item);
   Handle file_space(check_id(H5Dget_space(dataset), "get a dataspace"), H5Sclose);
   // Odometer over the chunk grid, last dimension fastest.

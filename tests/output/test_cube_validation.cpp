@@ -359,3 +359,61 @@ TEST_CASE("cubes of format 2 and variable-length text attributes are refused wit
                           Catch::Contains("attribute format is a variable-length string"));
   }
 }
+
+namespace {
+
+/// Replaces `name` by a chunked float64 dataset declaring `size` elements,
+/// none written (HDF5 allocates chunks only when they are written).
+void declare_huge(const std::string& path, const std::string& name, hsize_t size) {
+  o::File f = o::File::open(path, true);
+  if (o::exists(f.id(), name.substr(1))) o::check(H5Ldelete(f.id(), name.c_str(), H5P_DEFAULT), "delete");
+  const hsize_t dims[1] = {size}, chunk[1] = {1024};
+  o::Handle space(H5Screate_simple(1, dims, nullptr), H5Sclose);
+  o::Handle dcpl(H5Pcreate(H5P_DATASET_CREATE), H5Pclose);
+  H5Pset_chunk(dcpl.get(), 1, chunk);
+  o::Handle d(
+      H5Dcreate2(f.id(), name.c_str(), H5T_IEEE_F64LE, space.get(), H5P_DEFAULT, dcpl.get(), H5P_DEFAULT),
+      H5Dclose);
+  REQUIRE(d.get() >= 0);
+}
+
+}  // namespace
+
+TEST_CASE("damaged cubes: declared sizes are checked against the layout before anything is read",
+          "[output][validation]") {
+  // Were: allocations of 2^40 doubles (an allocation beyond the sanitizer's
+  // limit), minutes over 10^12 declared chunks or 200,000 method labels.
+  Fixture fx;
+  refused_by_all(
+      fx.damaged("huge-p", [&](const std::string& p) { declare_huge(p, "/summary/p", hsize_t{1} << 40); }),
+      "dataset /summary/p declares 1099511627776 values; a cube has at most 10000000");
+  refused_by_all(
+      fx.damaged("extra", [&](const std::string& p) { declare_huge(p, "/summary/extra", hsize_t{1} << 40); }),
+      "dataset /summary/extra is not part of a covergrid cube");
+  std::vector<std::string> many;
+  for (int i = 0; i < 200000; ++i) many.push_back(fmt::format("m{}", i));
+  refused_by_all(
+      fx.damaged("many-methods", [&](const std::string& p) { replace(p, "/summary/method", many); }),
+      "dataset /summary/method declares 200000 values; a cube has at most 4096");
+}
+
+TEST_CASE("damaged cubes: inspect --pair holds replicate counts to the stored scenario",
+          "[output][validation]") {
+  // Was: a count of 3e8 (within the cube-wide limit) re-drawn for hours.
+  Fixture fx;
+  const std::string cube =
+      fx.damaged("reps-3e8", [&](const std::string& p) { poke_i64(p, "/mc/replicates", 300'000'000); });
+  const auto r = call({"inspect", cube, "--pair", "wilson,wald"});
+  CHECK(r.status == 2);
+  CHECK(lines(r.err) == 1);
+  CHECK_THAT(r.err, Catch::Contains(cube + ": is damaged: dataset /mc/replicates holds 300000000") &&
+                        Catch::Contains("outside 0..40"));
+  // A count below the scenario's fixed 40 is within the cube-wide range
+  // (0..40) but not what the run drew: the re-draw refuses it too.
+  const std::string fewer =
+      fx.damaged("reps-7", [&](const std::string& p) { poke_i64(p, "/mc/replicates", 7); });
+  const auto f = call({"inspect", fewer, "--pair", "wilson,wald"});
+  CHECK(f.status == 2);
+  CHECK_THAT(f.err, Catch::Contains(fewer + ": is damaged: dataset /mc/replicates holds 7 at n = 3") &&
+                        Catch::Contains("where its scenario asks for 40"));
+}

@@ -110,7 +110,19 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
           const auto stored_a = cube.mc_row("coverage", model, side, level, ia, ni);
           double sum = 0, lo = HUGE_VAL, hi = -HUGE_VAL, zmax = 0;
           for (std::size_t pi = 0; pi < s.p.size(); ++pi) {
-            // Bounded here too: the re-draw loops over every replicate.
+            // As the stored scenario implies (its fixed count, or within its
+            // adaptive range): the re-draw loops over every replicate, so a
+            // damaged count (10^10) would keep it busy for hours.
+            const double want_lo = static_cast<double>(s.replicates),
+                         want_hi = static_cast<double>(s.target_se > 0 ? s.max_replicates : s.replicates);
+            if (!(reps[pi] >= want_lo && reps[pi] <= want_hi))
+              throw InputError(
+                  path,
+                  fmt::format("is damaged: dataset /mc/replicates holds {} at n = {}, p = {}, "
+                              "where its scenario asks for {}",
+                              reps[pi], n, s.p[pi],
+                              want_lo == want_hi ? fmt::format("{}", s.replicates)
+                                                 : fmt::format("{} to {}", s.replicates, s.max_replicates)));
             if (!(reps[pi] >= 0 && reps[pi] <= output::cube_replicates_limit))
               throw InputError(
                   path, fmt::format("is damaged: dataset /mc/replicates holds {} at n = {}, p = {}", reps[pi],

@@ -44,6 +44,17 @@ struct Scenario {
   std::string sha256;       // of source_text
 };
 
+/// Largest grid a scenario may ask for, in (model, n, p) cells: 10^9 cells
+/// are ~5·10^5 chunks to plan and, for one (method, level, side), 56 GB of
+/// exact metrics. The scenario loader refuses more; the cube reader refuses
+/// a cube whose axes declare more before it reads them.
+inline constexpr double max_grid_cells = 1e9;
+/// Largest number of (method, level, side) combinations: every chunk in
+/// flight holds 2048 cells x combinations x 7 metrics (470 MB at 4096).
+inline constexpr std::size_t max_combinations = 4096;
+/// Largest number of values on the n or the p axis.
+inline constexpr std::size_t max_axis_values = 10'000'000;
+
 /// Number of (side, level, method) combinations; their order everywhere is
 /// side-major, then level, then method (the cube's axis order).
 inline std::size_t combo_count(const Scenario& s) {

@@ -132,6 +132,12 @@ void read_every_chunk(hid_t dataset, const std::string& name);
 /// The paths of every dataset in the file, in name order ("/exact/coverage").
 std::vector<std::string> dataset_paths(hid_t file);
 
+/// The most elements a storage chunk of a cube may hold when it is read
+/// (covergrid writes at most a plan chunk's 2048 cells, or a whole 1-D
+/// axis of at most 10^7 values): a damaged declaration cannot make a read
+/// allocate more.
+inline constexpr std::size_t max_chunk_elements = std::size_t{1} << 24;
+
 /// The longest text attribute a reader accepts (bytes): a scenario text of
 /// more than this is refused, and a damaged size cannot make a read allocate.
 inline constexpr std::size_t max_attribute_text = std::size_t{1} << 24;

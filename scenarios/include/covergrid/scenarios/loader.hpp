@@ -28,13 +28,9 @@ std::string_view bundled_demo_text();
 
 /// Largest sample size a scenario may ask for.
 inline constexpr int max_sample_size = 10'000'000;
-/// Largest grid a scenario may ask for, in (model, n, p) cells: 10^9 cells
-/// are ~5·10^5 chunks to plan and, for one (method, level, side), 56 GB of
-/// exact metrics; a larger grid is refused up front.
-inline constexpr double max_grid_cells = 1e9;
-/// Largest number of (method, level, side) combinations: every chunk in
-/// flight holds 2048 cells x combinations x 7 metrics (470 MB at 4096).
-inline constexpr std::size_t max_combinations = 4096;
+/// The grid limits (engine/scenario.hpp), refused up front.
+using engine::max_combinations;
+using engine::max_grid_cells;
 /// Largest number of Monte Carlo replicates a cell may ask for.
 inline constexpr std::int64_t max_replicates_per_cell = 10'000'000'000;
 
