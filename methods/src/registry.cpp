@@ -34,8 +34,10 @@ std::string param_text(const ParamValue& value) {
 ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given) {
   ParamValues out;
   for (const auto& [key, value] : given) {
+    // Captured by name: clang 14 (the fuzz build) cannot capture a structured binding.
+    const std::string& name = key;
     const auto spec = std::find_if(entry.info.params.begin(), entry.info.params.end(),
-                                   [&](const ParamSpec& s) { return s.name == key; });
+                                   [&](const ParamSpec& s) { return s.name == name; });
     if (spec == entry.info.params.end()) {
       std::string known;
       for (const auto& s : entry.info.params) known += (known.empty() ? "" : ", ") + s.name;

@@ -153,7 +153,14 @@ File File::open(const std::string& path, bool writable) {
 void File::flush() const { check(H5Fflush(h_.get(), H5F_SCOPE_GLOBAL), "flush " + path_); }
 
 Handle create_group(hid_t parent, const std::string& name) {
-  return Handle(check_id(H5Gcreate2(parent, name.c_str(), H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT),
+  // Links kept in the group's object header (compact storage), which the
+  // HDF5 1.8 format checksums, up to far more than a cube's groups hold:
+  // past 8 links HDF5 moves them to a fractal heap whose blocks carry no
+  // checksum, and a damaged link there made H5Ovisit free a wild pointer
+  // (found by scripts/fuzz).
+  Handle gcpl(check_id(H5Pcreate(H5P_GROUP_CREATE), "make a group-creation list"), H5Pclose);
+  check(H5Pset_link_phase_change(gcpl.get(), 4096, 4000), "keep links in the group header");
+  return Handle(check_id(H5Gcreate2(parent, name.c_str(), H5P_DEFAULT, gcpl.get(), H5P_DEFAULT),
                          "create group " + name),
                 H5Gclose);
 }
@@ -527,17 +534,51 @@ void read_every_chunk(hid_t dataset, const std::string& name) {
   }
 }
 
+namespace {
+
+/// Adds the datasets under `group` (named `prefix`) to `out`, walking only
+/// what covergrid writes: hard links kept in the group's object header
+/// (compact storage, under its checksum), groups nested at most a few
+/// deep. A group whose links sit in dense storage (a fractal heap whose
+/// blocks carry no checksum: a damaged one made HDF5 1.10's own walk free a
+/// wild pointer), a soft or external link, or a deeper nesting is refused
+/// before HDF5 follows it.
+void collect_datasets(hid_t group, const std::string& prefix, int depth, std::vector<std::string>& out) {
+  const std::string here = prefix.empty() ? "/" : prefix;
+  if (depth > 4) throw CubeError("groups are nested deeper than a cube's, at " + here);
+  H5G_info_t info;
+  check(H5Gget_info(group, &info), "read the links of group " + here);
+  if (info.nlinks > 0 && info.storage_type != H5G_STORAGE_TYPE_COMPACT)
+    throw CubeError("group " + here + " keeps its links in a form covergrid does not write (not compact)");
+  for (hsize_t i = 0; i < info.nlinks; ++i) {
+    char name[1024];
+    const ssize_t len =
+        H5Lget_name_by_idx(group, ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT);
+    if (len < 0 || static_cast<std::size_t>(len) >= sizeof name)
+      throw CubeError("cannot read a link name in group " + here);
+    H5L_info_t link;
+    check(H5Lget_info(group, name, &link, H5P_DEFAULT), "read link " + prefix + "/" + name);
+    if (link.type != H5L_TYPE_HARD)
+      throw CubeError("group " + here + " holds a soft or external link, " + name +
+                      ", which a cube never has");
+    H5O_info_t object;
+    check(H5Oget_info_by_name2(group, name, &object, H5O_INFO_BASIC, H5P_DEFAULT),
+          "read object " + prefix + "/" + name);
+    const std::string path = prefix + "/" + name;
+    if (object.type == H5O_TYPE_DATASET) {
+      out.push_back(path);
+    } else if (object.type == H5O_TYPE_GROUP) {
+      Handle g = open_group(group, name);
+      collect_datasets(g.get(), path, depth + 1, out);
+    }
+  }
+}
+
+}  // namespace
+
 std::vector<std::string> dataset_paths(hid_t file) {
   std::vector<std::string> out;
-  auto visit = [](hid_t, const char* name, const H5O_info_t* info, void* data) -> herr_t {
-    if (info->type == H5O_TYPE_DATASET) {
-      std::string path(1, '/');
-      path.append(name);
-      static_cast<std::vector<std::string>*>(data)->push_back(std::move(path));
-    }
-    return 0;
-  };
-  check(H5Ovisit2(file, H5_INDEX_NAME, H5_ITER_INC, visit, &out, H5O_INFO_BASIC), "list the datasets");
+  collect_datasets(file, "", 0, out);
   return out;
 }
 

@@ -199,3 +199,19 @@ TEST_CASE("merge with a shard zeroed at any 4 KiB offset is refused or merges ri
   }
   CHECK(refused > 0);
 }
+
+TEST_CASE("fuzz findings: a cube whose damaged dense link storage crashed HDF5 is refused", "[cli][damage]") {
+  // scripts/fuzz (fuzz_cube) found this mutation of a cube whose groups kept
+  // their links in dense storage: H5Ovisit freed a wild pointer (SEGV).
+  // Cubes now keep links compact, under the object header's checksum, and
+  // the reader refuses dense link storage before HDF5 walks it.
+  ScratchDir dir("fuzz-finding");
+  fs::copy_file(COVERGRID_TEST_DATA "/fuzz/cube-dense-links-crash.bin", dir.path() / "d.h5");
+  for (const std::string command : {"inspect d.h5", "rank d.h5", "report d.h5 -o d.html"}) {
+    const auto r = run_shell(dir.path(), command);
+    INFO(command << ": exit " << r.status << ": " << r.err);
+    CHECK(r.status == 2);
+    CHECK(one_line_naming(r.err, "d.h5"));
+    CHECK_THAT(r.err, Catch::Contains("keeps its links in a form covergrid does not write"));
+  }
+}
