@@ -165,7 +165,9 @@ class Reader {
     if (size > static_cast<std::uint64_t>(end_ - p_) / sizeof(double))
       throw CubeError("journal record is shorter than its contents");
     v.resize(size);
-    std::memcpy(v.data(), p_, size * sizeof(double));
+    // An empty vector's data() may be null, and memcpy's arguments must
+    // not be even for 0 bytes (found by scripts/fuzz under UBSan).
+    if (size > 0) std::memcpy(v.data(), p_, size * sizeof(double));
     p_ += size * sizeof(double);
   }
 

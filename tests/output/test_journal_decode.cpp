@@ -44,3 +44,18 @@ TEST_CASE("a journal vector that fits its record decodes", "[output][journal][ro
   CHECK_THROWS_WITH(o::decode_chunk(p.data(), p.size(), r), Catch::Contains("shorter than its contents"));
   CHECK(r.exact[0].size() == 1);
 }
+
+TEST_CASE("a journal vector of size 0 decodes without touching a null pointer",
+          "[output][journal][robustness]") {
+  // scripts/fuzz (fuzz_journal) found memcpy(nullptr, ..., 0) here, undefined
+  // behaviour that the sanitizer build reports: the sizes are all zero.
+  std::string p;
+  p.push_back(static_cast<char>(1));  // exact metrics present, each an empty vector
+  const std::uint64_t zero = 0;
+  for (std::size_t k = 0; k < covergrid::engine::metric_count; ++k)
+    p.append(reinterpret_cast<const char*>(&zero), sizeof zero);
+  covergrid::engine::ChunkResult r;
+  o::decode_chunk(p.data(), p.size(), r);
+  CHECK(r.has_exact);
+  CHECK(r.exact[0].empty());
+}

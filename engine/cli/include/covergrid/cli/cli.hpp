@@ -9,9 +9,9 @@
 
 namespace covergrid::cli {
 
-/// Exit statuses (README, "Commands"): 0 success, 1 internal failure or an
-/// interrupted run, 2 bad input, 3 a claim refuted, 4 inconclusive, 5 no n
-/// in a plan's range.
+/// Exit statuses (README, "Commands"): 0 success, 1 internal failure, an
+/// interrupted run or a failed write on standard output, 2 bad input, 3 a claim refuted, 4 inconclusive, 5 no
+/// n in a plan's range.
 enum Exit : int {
   exit_ok = 0,
   exit_internal = 1,
