@@ -81,24 +81,32 @@ struct ExactRow {
   BelowMeasure below;
 };
 
-Verdict audit_exact(const Claim& c, int threads) {
+/// One n of an exact claim: everything the verdict reads.
+ExactRow exact_row(const Claim& c, int n) {
+  const double t = c.threshold() - coverage_decision_slack;
+  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side);
+  ExactRow r;
+  if (c.kind == ClaimKind::minimum) {
+    r.inf = coverage_infimum(table, c.p_lo, c.p_hi);
+  } else {
+    r.mean = coverage_uniform_mean(table, c.p_lo, c.p_hi);
+    const auto m = miss_uniform_means(table, c.p_lo, c.p_hi);
+    r.mean_low = m[0];
+    r.mean_high = m[1];
+  }
+  r.below = coverage_measure_below(table, c.p_lo, c.p_hi, t);
+  return r;
+}
+
+Verdict audit_exact(const Claim& c, int threads, const AuditProgressFn& progress) {
   Verdict v;
   v.threshold = c.threshold();
   v.n_count = c.n.size();
   const double t = v.threshold - coverage_decision_slack;
   std::vector<ExactRow> rows(c.n.size());
   for_each_index(c.n.size(), threads, [&](std::size_t i) {
-    const IntervalTable table = build_table(*c.method.method, c.n[i], c.level, c.side);
-    ExactRow& r = rows[i];
-    if (c.kind == ClaimKind::minimum) {
-      r.inf = coverage_infimum(table, c.p_lo, c.p_hi);
-    } else {
-      r.mean = coverage_uniform_mean(table, c.p_lo, c.p_hi);
-      const auto m = miss_uniform_means(table, c.p_lo, c.p_hi);
-      r.mean_low = m[0];
-      r.mean_high = m[1];
-    }
-    r.below = coverage_measure_below(table, c.p_lo, c.p_hi, t);
+    rows[i] = exact_row(c, c.n[i]);
+    if (progress) progress(c.n[i]);
   });
   std::size_t worst = 0;
   double share = 0;
@@ -145,38 +153,52 @@ struct SimCell {
   std::uint64_t covered = 0;
 };
 
-Verdict audit_simulated(const Claim& c, int threads) {
-  Verdict v;
-  v.simulated = true;
-  v.threshold = c.threshold();
-  v.replicates = c.replicates;
-  v.n_count = c.n.size();
-  const double t = v.threshold;
+/// The p points of a simulated claim: p_points equally spaced across the
+/// range (one point for a single p).
+std::vector<double> sim_points(const Claim& c) {
   const std::size_t points = c.p_hi > c.p_lo ? std::max<std::size_t>(c.p_points, 2) : 1;
   std::vector<double> ps(points);
   for (std::size_t j = 0; j < points; ++j)
     ps[j] = j + 1 == points
                 ? c.p_hi
                 : c.p_lo + (c.p_hi - c.p_lo) * static_cast<double>(j) / static_cast<double>(points - 1);
+  return ps;
+}
+
+/// One n of a simulated claim: `replicates` draws at each p point into
+/// out[0 .. ps.size()).
+void simulate_row(const Claim& c, int n, const std::vector<double>& ps, std::uint64_t replicates,
+                  SimCell* out) {
+  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side);
+  const std::vector<const IntervalTable*> tables = {&table};
+  BinomialWindow window;
+  CellDraws draws;
+  for (std::size_t j = 0; j < ps.size(); ++j) {
+    window.fill(n, ps[j]);
+    const CellStream stream(c.seed, 0, static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(j));
+    simulate_cell(window, stream, ReplicateRule{replicates, 0, 0}, tables, ps[j], draws);
+    const McMetrics m = mc_metrics(table, window, draws, ps[j]);
+    SimCell& cell = out[j];
+    cell.coverage = m[index(Metric::coverage)];
+    cell.miss_low = m[index(Metric::miss_low)];
+    cell.miss_high = m[index(Metric::miss_high)];
+    cell.covered = static_cast<std::uint64_t>(std::llround(cell.coverage * static_cast<double>(replicates)));
+  }
+}
+
+Verdict audit_simulated(const Claim& c, int threads, const AuditProgressFn& progress) {
+  Verdict v;
+  v.simulated = true;
+  v.threshold = c.threshold();
+  v.replicates = c.replicates;
+  v.n_count = c.n.size();
+  const double t = v.threshold;
+  const std::vector<double> ps = sim_points(c);
+  const std::size_t points = ps.size();
   std::vector<SimCell> cells(c.n.size() * points);
   for_each_index(c.n.size(), threads, [&](std::size_t i) {
-    const int n = c.n[i];
-    const IntervalTable table = build_table(*c.method.method, n, c.level, c.side);
-    const std::vector<const IntervalTable*> tables = {&table};
-    BinomialWindow window;
-    CellDraws draws;
-    for (std::size_t j = 0; j < points; ++j) {
-      window.fill(n, ps[j]);
-      const CellStream stream(c.seed, 0, static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(j));
-      simulate_cell(window, stream, ReplicateRule{c.replicates, 0, 0}, tables, ps[j], draws);
-      const McMetrics m = mc_metrics(table, window, draws, ps[j]);
-      SimCell& cell = cells[i * points + j];
-      cell.coverage = m[index(Metric::coverage)];
-      cell.miss_low = m[index(Metric::miss_low)];
-      cell.miss_high = m[index(Metric::miss_high)];
-      cell.covered =
-          static_cast<std::uint64_t>(std::llround(cell.coverage * static_cast<double>(c.replicates)));
-    }
+    simulate_row(c, c.n[i], ps, c.replicates, &cells[i * points]);
+    if (progress) progress(c.n[i]);
   });
   const double alpha = 1.0 - c.confidence;
   const double r = static_cast<double>(c.replicates);
@@ -304,7 +326,7 @@ Verdict audit_simulated(const Claim& c, int threads) {
 
 }  // namespace
 
-Verdict audit_claim(const Claim& c, int threads) {
+Verdict audit_claim(const Claim& c, int threads, const AuditProgressFn& progress) {
   const std::string where = c.name.empty() ? "claim" : "claim " + c.name;
   if (!c.method.method) throw InputError(where, "names no method");
   if (!c.method.method->supports(c.side))
@@ -314,14 +336,14 @@ Verdict audit_claim(const Claim& c, int threads) {
   if (!(c.p_lo >= 0 && c.p_hi <= 1 && c.p_lo <= c.p_hi))
     throw InputError(where, "its p range is not inside [0, 1]");
   if (!(c.tolerance >= 0)) throw InputError(where, "tolerance must not be negative");
-  if (c.replicates == 0) return audit_exact(c, threads);
-  Verdict v = audit_simulated(c, threads);
+  if (c.replicates == 0) return audit_exact(c, threads, progress);
+  Verdict v = audit_simulated(c, threads, progress);
   // Claims are binomial, whose coverage has exact sums: an inconclusive
   // simulation is settled at once by the exact engine, and the output says so
   // instead of only asking for more replicates. (A model without exact sums
   // would skip this.)
   if (v.outcome == Outcome::inconclusive) {
-    const Verdict e = audit_exact(c, threads);
+    const Verdict e = audit_exact(c, threads, {});
     v.exact_decided = true;
     v.exact_outcome = e.outcome;
     v.exact_worst_n = e.worst_n;
@@ -329,6 +351,41 @@ Verdict audit_claim(const Claim& c, int threads) {
     v.exact_worst_coverage = e.worst_coverage;
   }
   return v;
+}
+
+WorkEstimate estimate_audit(const Claim& c, int threads) {
+  if (!c.method.method || c.n.empty()) return estimate_per_n({}, threads, [](int) {});
+  if (c.replicates == 0) return estimate_per_n(c.n, threads, [&](int n) { (void)exact_row(c, n); });
+  // Probes draw at most kProbeReplicates per cell; the replicates beyond
+  // them are costed per draw on one cell at the claim's middle n.
+  constexpr std::uint64_t kProbeReplicates = 64;
+  const std::vector<double> ps = sim_points(c);
+  std::vector<SimCell> row(ps.size());
+  const std::uint64_t probe = std::min(c.replicates, kProbeReplicates);
+  double extra = 0;
+  if (c.replicates > probe) {
+    const int n = c.n[c.n.size() / 2];
+    const std::vector<double> mid = {ps[ps.size() / 2]};
+    BinomialWindow window;
+    window.fill(n, mid[0]);
+    const IntervalTable table = build_table(*c.method.method, n, c.level, c.side);
+    const std::vector<const IntervalTable*> tables = {&table};
+    CellDraws draws;
+    std::uint64_t drawn = 0;
+    const double t0 = steady_seconds();
+    double took = 0;
+    for (std::uint32_t k = 0; took < 0.02 && drawn < c.replicates; ++k) {
+      const CellStream stream(c.seed, 1, static_cast<std::uint32_t>(n), k);
+      const std::uint64_t r = std::min<std::uint64_t>(c.replicates - drawn, 4096);
+      simulate_cell(window, stream, ReplicateRule{r, 0, 0}, tables, mid[0], draws);
+      drawn += r;
+      took = steady_seconds() - t0;
+    }
+    extra = took / static_cast<double>(drawn) * static_cast<double>(c.replicates - probe) *
+            static_cast<double>(ps.size() * c.n.size());
+  }
+  return estimate_per_n(
+      c.n, threads, [&](int n) { simulate_row(c, n, ps, probe, row.data()); }, extra);
 }
 
 }  // namespace covergrid::engine

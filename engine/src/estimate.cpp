@@ -9,6 +9,8 @@
 
 #include <algorithm>
 #include <chrono>
+#include <cmath>
+#include <cstdint>
 #include <thread>
 
 namespace covergrid::engine {
@@ -105,6 +107,80 @@ RunEstimate estimate_run(const Scenario& scenario, const Plan& plan, const std::
   const double parallel = std::min<double>(e.threads, hw);
   e.seconds = (timed_cost > 0 ? total_cost * timed_seconds / timed_cost / parallel : 0) +
               e.cube_bytes * kAssemblySecondsPerByte;
+  return e;
+}
+
+double steady_seconds() {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
+}
+
+double WorkEstimate::cost(int n) const {
+  return seconds_at_ref * std::pow(static_cast<double>(n) / static_cast<double>(ref_n), exponent);
+}
+
+WorkEstimate estimate_per_n(std::span<const int> ns, int threads, const std::function<void(int)>& step,
+                            double extra_seconds, const Clock& clock) {
+  // Probe budget and the share of the estimate the probes may take (as in
+  // estimate_run); a step under kMinTimed seconds is repeated up to
+  // kMaxRepeats times so that timer noise does not dominate.
+  constexpr double kPerNBudget = 0.5, kPerNShare = 0.02, kMinTimed = 2e-4;
+  constexpr int kMaxRepeats = 1000;
+  WorkEstimate e;
+  const unsigned hw = std::max(1u, std::thread::hardware_concurrency());
+  e.threads = threads > 0 ? threads : static_cast<int>(hw);
+  const double parallel = std::min<double>(e.threads, hw);
+  if (ns.empty()) {
+    e.seconds = extra_seconds / parallel;
+    return e;
+  }
+  struct Probe {
+    int n;
+    double seconds;
+  };
+  std::vector<Probe> probes;
+  auto per_n_sum = [&](double at_ref, int ref, double b) {
+    double sum = 0;
+    for (int n : ns) sum += at_ref * std::pow(static_cast<double>(n) / ref, b);
+    return sum;
+  };
+  const double start = clock();
+  std::size_t i = 0;
+  while (true) {
+    const int n = ns[i];
+    int repeats = 0;
+    const double t0 = clock();
+    double took = 0;
+    do {
+      step(n);
+      ++repeats;
+      took = clock() - t0;
+    } while (took < kMinTimed && repeats < kMaxRepeats);
+    probes.push_back({n, took / repeats});
+    if (i + 1 == ns.size()) break;
+    // The next n: about four times this one (the last n at most).
+    const auto next = std::lower_bound(ns.begin() + static_cast<std::ptrdiff_t>(i) + 1, ns.end(),
+                                       static_cast<std::int64_t>(n) * 4 > INT32_MAX ? INT32_MAX : n * 4);
+    const std::size_t j = next == ns.end() ? ns.size() - 1 : static_cast<std::size_t>(next - ns.begin());
+    const double spent = clock() - start;
+    const double predicted = probes.back().seconds * std::pow(static_cast<double>(ns[j]) / n, 2.0);
+    if (spent + predicted > kPerNBudget) break;
+    if (spent > kPerNShare * per_n_sum(probes.back().seconds, n, 1.0)) break;
+    i = j;
+  }
+  e.calibration_seconds = clock() - start;
+  e.probes = probes.size();
+  const Probe& last = probes.back();
+  e.largest_probe = last.n;
+  e.ref_n = last.n;
+  e.seconds_at_ref = last.seconds;
+  if (probes.size() >= 2) {
+    const Probe& before = probes[probes.size() - 2];
+    if (before.seconds > 0 && last.seconds > 0 && last.n > before.n)
+      e.exponent = std::clamp(
+          std::log(last.seconds / before.seconds) / std::log(static_cast<double>(last.n) / before.n), 0.0,
+          3.0);
+  }
+  e.seconds = (per_n_sum(e.seconds_at_ref, e.ref_n, e.exponent) + extra_seconds) / parallel;
   return e;
 }
 

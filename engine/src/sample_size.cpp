@@ -14,6 +14,7 @@
 #include <oneapi/tbb/task_arena.h>
 
 #include <algorithm>
+#include <numeric>
 #include <cmath>
 #include <string>
 #include <tuple>
@@ -210,6 +211,15 @@ bool plan_meets(const PlanRequest& q, int n) {
       }
     }
   return true;
+}
+
+WorkEstimate estimate_plan(const PlanRequest& q, int threads) {
+  std::vector<int> ns;
+  if (q.method.method && q.n_from >= 1 && q.n_to >= q.n_from) {
+    ns.resize(static_cast<std::size_t>(q.n_to - q.n_from) + 1);
+    std::iota(ns.begin(), ns.end(), q.n_from);
+  }
+  return estimate_per_n(ns, threads, [&](int n) { (void)plan_meets(q, n); });
 }
 
 PlanResult plan_sample_size(const PlanRequest& q, int threads, const PlanProgressFn& progress) {

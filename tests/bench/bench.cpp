@@ -9,6 +9,7 @@
 //   mc-threads     a Monte Carlo grid on 1 and 2 threads; the cost of 1e5 cells x 1e4 replicates
 //   plan           sample-size searches: wall times, against brute force over every n, 2 threads vs 1
 //   estimate       run's up-front time estimate against the measured wall time of the same run
+//   tables [N]     every method's interval table at n = N (default 100000), one thread
 #include "covergrid/engine/binomial_window.hpp"
 #include "covergrid/engine/estimate.hpp"
 #include "covergrid/engine/coverage_rule.hpp"
@@ -606,6 +607,31 @@ tables = ""
 
 }  // namespace
 
+/// Every catalog method's table (default parameters, 95 %, each side it
+/// supports) at one n, on one thread: the cost a run pays before its first
+/// cell, and what an audit over large n pays per n.
+void tables(int n) {
+  fmt::print("tables: one interval table per method and side at n = {}, level 0.95, one thread\n", n);
+  double fastest = 0, slowest = 0, total = 0;
+  std::string slowest_id;
+  for (const auto& entry : m::registry()) {
+    const auto mi = m::make_instance(entry.info.id, {});
+    for (const auto side : {m::Side::two_sided, m::Side::lower_bound}) {
+      if (!mi.method->supports(side)) continue;
+      const double t0 = now();
+      const auto t = e::build_table_mirrored(*mi.method, n, 0.95, side);
+      const double dt = now() - t0;
+      if (t.width.empty()) fmt::print("impossible\n");
+      fmt::print("  {:<24} {:<12} {:8.3f} s\n", entry.info.id, m::side_name(side), dt);
+      total += dt;
+      if (fastest == 0 || dt < fastest) fastest = dt;
+      if (dt > slowest) slowest = dt, slowest_id = entry.info.id;
+    }
+  }
+  fmt::print("  total {:.2f} s; slowest {} {:.3f} s = {:.0f}x the fastest table\n", total, slowest_id,
+             slowest, slowest / fastest);
+}
+
 int main(int argc, char** argv) {
   const std::string what = argc > 1 ? argv[1] : "all";
   if (what == "memory-child") return memory_child(argv[2], std::atoi(argv[3]));
@@ -621,5 +647,6 @@ int main(int argc, char** argv) {
   if (what == "all" || what == "shards") shards();
   if (what == "all" || what == "merge") merge_cost();
   if (what == "all" || what == "mpi") mpi_speedup();
+  if (what == "all" || what == "tables") tables(what == "tables" && argc > 2 ? std::atoi(argv[2]) : 100000);
   return 0;
 }

@@ -235,3 +235,40 @@ TEST_CASE("the start-of-run estimate of 10^10 replicates per cell is made from b
   CHECK(r.out.find("estimate: 4 cells to compute, about ") != std::string::npos);
   CHECK(r.out.find("under a second") == std::string::npos);
 }
+
+TEST_CASE("audit and plan estimate their work up front and ask for --yes above two hours",
+          "[cli][robustness][estimate]") {
+  // Was: one bayes-hpd claim over n = 3..100000 ran for over ten minutes
+  // without a word (it needs hours). The probes take about half a second;
+  // the suite's time limit would catch an audit that started the work.
+  const auto r = call({"audit", "--method", "bayes-hpd", "--side", "lower-bound", "--level", "0.95", "--n",
+                       "3:100000", "--p", "0.01:0.99"});
+  INFO(r.err);
+  CHECK(r.status == 2);
+  CHECK(r.out.empty());
+  CHECK(r.err.find("covergrid: --yes: this audit is large: about ") != std::string::npos);
+  CHECK(r.err.find("the limit without --yes: about 2.0 h of wall time); narrow the claims' n ranges") !=
+        std::string::npos);
+  CHECK(r.err.find('\n') == r.err.size() - 1);
+  // A claims file is estimated the same way.
+  covergrid::test::ScratchDir dir("audit-estimate");
+  std::ofstream(dir.path() / "c.toml") << "[[claim]]\nmethod = \"blaker\"\nlevel = 0.95\n"
+                                          "n = { from = 10, to = 200000 }\np = { from = 0.01, to = 0.99 }\n";
+  const auto f = call({"audit", "--claims", dir.file("c.toml")});
+  INFO(f.err);
+  CHECK(f.status == 2);
+  CHECK(f.err.find("this audit is large") != std::string::npos);
+  // The plan's estimate is an upper bound: every n of the range decided.
+  const auto p = call({"plan", "--method", "blaker", "--level", "0.95", "--min-coverage", "0.95", "--p",
+                       "0.01:0.99", "--n", "1:1000000"});
+  INFO(p.err);
+  CHECK(p.status == 2);
+  CHECK(p.out.empty());
+  CHECK(p.err.find("covergrid: --yes: this plan is large: about ") != std::string::npos);
+  CHECK(p.err.find("narrow the --n search range, or run again with --yes") != std::string::npos);
+  // A small audit is not held up, and says nothing of its estimate off a
+  // terminal when it is short.
+  const auto s = call({"audit", "--method", "wilson", "--level", "0.95", "--n", "10:40", "--p", "0.1:0.9"});
+  CHECK(s.status == 3);
+  CHECK(s.err.empty());
+}

@@ -2,6 +2,7 @@
 // claims file; exit 0 all hold, 3 some claim refuted, 4 none refuted but
 // some inconclusive (simulated claims).
 #include "commands.hpp"
+#include "progress.hpp"
 #include "covergrid/engine/output_location.hpp"
 #include "covergrid/engine/audit.hpp"
 #include "covergrid/output/tables.hpp"
@@ -11,7 +12,10 @@
 
 #include <fmt/format.h>
 
+#include <unistd.h>
+
 #include <memory>
+#include <mutex>
 
 namespace covergrid::cli {
 
@@ -23,6 +27,7 @@ struct AuditArgs {
   double level = 0, tolerance = 0, confidence = 0.95;
   std::int64_t replicates = 0, p_points = 101, seed = 0;
   int threads = 0;
+  bool yes = false, quiet = false;
 };
 
 engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
@@ -72,7 +77,7 @@ engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
   return c;
 }
 
-int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out) {
+int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out, std::ostream& err) {
   output::VerdictFormat format{};
   if (a.format == "text")
     format = output::VerdictFormat::text;
@@ -96,8 +101,51 @@ int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out) {
   } else {
     claims.push_back(claim_from_options(a, app));
   }
+  // Up-front estimate: every claim's per-n work, probed (about half a
+  // second at most per claim); a large audit needs --yes.
+  engine::WorkEstimate total;
+  std::vector<engine::WorkEstimate> estimates;
+  std::size_t n_total = 0;
+  for (const auto& c : claims) {
+    estimates.push_back(engine::estimate_audit(c, a.threads));
+    const auto& e = estimates.back();
+    total.seconds += e.seconds;
+    total.calibration_seconds += e.calibration_seconds;
+    total.probes += e.probes;
+    total.largest_probe = std::max(total.largest_probe, e.largest_probe);
+    total.threads = e.threads;
+    n_total += c.n.size();
+  }
+  check_large_work("audit", total, a.yes, "narrow the claims' n ranges (or their replicates)");
+  const bool tty = isatty(STDERR_FILENO) != 0;
+  if (!a.quiet && (tty || total.seconds >= show_estimate_seconds))
+    err << fmt::format("covergrid: audit of {} claim{} over {} n: {}\n", claims.size(),
+                       claims.size() == 1 ? "" : "s", n_total, work_estimate_text(total))
+        << std::flush;
+  // Progress (a terminal only): n done, the share weighted by each n's
+  // estimated cost.
+  Progress progress(err, a.quiet || !tty, tty, "n");
+  std::mutex done_mutex;
+  std::size_t n_done = 0;
+  double cost_done = 0, cost_total = 0;
+  for (std::size_t k = 0; k < claims.size(); ++k)
+    for (int n : claims[k].n) cost_total += estimates[k].cost(n);
   std::vector<engine::Verdict> verdicts;
-  for (const auto& c : claims) verdicts.push_back(engine::audit_claim(c, a.threads));
+  for (std::size_t k = 0; k < claims.size(); ++k) {
+    const engine::WorkEstimate& e = estimates[k];
+    verdicts.push_back(engine::audit_claim(claims[k], a.threads, [&](int n) {
+      std::size_t done = 0;
+      double frac = 0;
+      {
+        const std::lock_guard<std::mutex> lock(done_mutex);
+        done = ++n_done;
+        cost_done += e.cost(n);
+        frac = cost_total > 0 ? std::min(1.0, cost_done / cost_total) : 0.0;
+      }
+      progress.update(done, n_total, frac);
+    }));
+  }
+  progress.done();
   const std::string table = output::verdict_table(claims, verdicts, format);
   if (a.output.empty())
     out << table;
@@ -136,6 +184,10 @@ Command add_audit_command(CLI::App& app) {
   audit->add_option("--seed", a->seed, "Monte Carlo: stream key (default 0)");
   audit->add_option("--format", a->format, "text (default), csv or json");
   audit->add_option("-o,--output", a->output, "write the verdict table to this file instead of stdout");
+  audit->add_flag("--yes", a->yes,
+                  "start a large audit (estimated over 2 hours of wall time), which otherwise is refused");
+  audit->add_flag("--quiet", a->quiet,
+                  "no estimate or progress display (both on stderr; progress only on a terminal)");
   audit->add_option("--threads", a->threads, "worker threads (default: all cores)")
       ->check(integer_in(1, 4096))
       ->type_name("1..4096");
@@ -145,7 +197,8 @@ Command add_audit_command(CLI::App& app) {
       "coverage; simulated claims with Clopper-Pearson bounds made simultaneous by Bonferroni over every "
       "cell.\n\n" +
       output::wrap_text(output::coverage_caution, 100));
-  return {audit, [a, audit](std::ostream& out, std::ostream&) { return cmd_audit(*a, *audit, out); }};
+  return {audit,
+          [a, audit](std::ostream& out, std::ostream& err) { return cmd_audit(*a, *audit, out, err); }};
 }
 
 }  // namespace covergrid::cli

@@ -1,6 +1,7 @@
 // covergrid plan: the smallest n meeting coverage, width or margin
 // requirements, per method, by the exact engine (no cube is written).
 #include "commands.hpp"
+#include "progress.hpp"
 #include "covergrid/cli/cli.hpp"
 #include "covergrid/engine/sample_size.hpp"
 #include "covergrid/output/tables.hpp"
@@ -22,7 +23,7 @@ struct PlanArgs {
   std::string side = "two-sided", p, n = "1:5000", format = "text";
   double min_coverage = -1, mean_coverage = -1, max_width = -1, max_margin = -1;
   int threads = 0;
-  bool quiet = false;
+  bool quiet = false, yes = false;
 };
 
 std::string figures_text(const engine::PlanFigures& f) {
@@ -127,6 +128,22 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
                        fmt::format("{} does not define the side {}", q.method.label, a.side));
     requests.push_back(std::move(q));
   }
+  // Up-front estimate, an upper bound: every n of the range decided, for
+  // every method (the search usually decides far fewer). A large one needs
+  // --yes.
+  engine::WorkEstimate total;
+  for (const auto& q : requests) {
+    const engine::WorkEstimate e = engine::estimate_plan(q, a.threads);
+    total.seconds += e.seconds;
+    total.probes += e.probes;
+    total.largest_probe = std::max(total.largest_probe, e.largest_probe);
+    total.threads = e.threads;
+  }
+  check_large_work("plan", total, a.yes, "narrow the --n search range");
+  if (!a.quiet && (isatty(STDERR_FILENO) != 0 || total.seconds >= show_estimate_seconds))
+    err << fmt::format("covergrid: plan over n {}..{}, {} method{}: at most {}\n", base.n_from, base.n_to,
+                       requests.size(), requests.size() == 1 ? "" : "s", work_estimate_text(total))
+        << std::flush;
   std::string reqs;
   for (const auto& [r, v] : base.requirements)
     reqs += fmt::format("{}{} {:g}", reqs.empty() ? "" : ", ", engine::requirement_name(r), v);
@@ -234,7 +251,11 @@ Command add_plan_command(CLI::App& app) {
                    "worker threads (default: all cores); the answers do not depend on it")
       ->check(integer_in(1, 4096))
       ->type_name("1..4096");
-  plan->add_flag("--quiet", a->quiet, "no progress display (shown on stderr only when it is a terminal)");
+  plan->add_flag("--quiet", a->quiet,
+                 "no estimate or progress display (both on stderr; progress only on a terminal)");
+  plan->add_flag("--yes", a->yes,
+                 "start a large plan (estimated over 2 hours of wall time if every n of the range is "
+                 "decided), which otherwise is refused");
   plan->footer(
       "A zero-width interval (U - L <= 1e-12, e.g. Wald's [0, 0] at x = 0) claims a certainty the data "
       "cannot\n"

@@ -1,6 +1,7 @@
 // covergrid run: evaluate a scenario into its cube (resumable), with progress
 // on stderr and a clean stop on SIGINT/SIGTERM.
 #include "commands.hpp"
+#include "progress.hpp"
 #include "covergrid/engine/estimate.hpp"
 #include "covergrid/engine/run.hpp"
 #include "covergrid/engine/shard.hpp"
@@ -28,57 +29,6 @@ namespace {
 
 std::atomic<bool> stop_requested{false};
 extern "C" void on_stop_signal(int) { stop_requested.store(true); }
-
-/// Progress on stderr: redrawn in place on a terminal, a plain line every few
-/// seconds otherwise.
-class Progress {
- public:
-  Progress(std::ostream& err, bool quiet, bool tty)
-      : err_(err), quiet_(quiet), tty_(tty), start_(std::chrono::steady_clock::now()), last_(start_) {}
-  void update(std::size_t done, std::size_t total) {
-    if (quiet_) return;
-    const auto now = std::chrono::steady_clock::now();
-    if (!started_) {
-      // The rate counts from the start of the run; resumed cells do not count.
-      start_done_ = resumed_;
-      started_ = true;
-    }
-    const double elapsed = std::chrono::duration<double>(now - start_).count();
-    if (!tty_ && done < total && std::chrono::duration<double>(now - last_).count() < 5.0) return;
-    last_ = now;
-    const double rate = elapsed > 0 ? static_cast<double>(done - start_done_) / elapsed : 0.0;
-    const double left = rate > 0 ? static_cast<double>(total - done) / rate : 0.0;
-    const double frac = total ? static_cast<double>(done) / static_cast<double>(total) : 1.0;
-    std::string line;
-    if (tty_) {
-      const int bar = 28, filled = static_cast<int>(frac * bar);
-      line =
-          fmt::format("\r[{}{}] {:5.1f}%  {}/{} cells  {:.3g} cells/s  {} left  ", std::string(filled, '#'),
-                      std::string(bar - filled, '.'), 100 * frac, done, total, rate, duration(left));
-    } else {
-      line = fmt::format("progress: {}/{} cells ({:.1f}%), {:.3g} cells/s, about {} left\n", done, total,
-                         100 * frac, rate, duration(left));
-    }
-    err_ << line << std::flush;
-  }
-  void done() {
-    if (!quiet_ && tty_ && started_) err_ << '\n';
-  }
-
- private:
-  static std::string duration(double s) {
-    if (s < 90) return fmt::format("{:.0f}s", s);
-    if (s < 5400) return fmt::format("{:.0f}min", s / 60);
-    return fmt::format("{:.1f}h", s / 3600);
-  }
-  std::ostream& err_;
-  bool quiet_, tty_, started_ = false;
-  std::chrono::steady_clock::time_point start_, last_;
-  std::size_t start_done_ = 0;
-
- public:
-  std::size_t resumed_ = 0;  // cells already done when the run started
-};
 
 struct RunArgs {
   std::string scenario_file;
@@ -203,7 +153,7 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
       const auto done = writer.completed();
       for (const auto& c : plan.chunks)
         if (done[c.id] && (!shard || std::binary_search(shard->chunks.begin(), shard->chunks.end(), c.id)))
-          progress.resumed_ += c.n_count * c.p_count;
+          progress.resumed += c.n_count * c.p_count;
     }
     engine::RunOptions options;
     options.threads = a.threads;

@@ -8,6 +8,7 @@
 /// (binomial model). Simulation decides at a grid of p points with
 /// simultaneous Clopper-Pearson bounds (Bonferroni over every cell of the
 /// claim), and can be inconclusive.
+#include "covergrid/engine/estimate.hpp"
 #include "covergrid/engine/scenario.hpp"
 
 #include <cstdint>
@@ -82,9 +83,20 @@ struct Verdict {
   double exact_worst_p = 0, exact_worst_coverage = 0;
 };
 
+/// Called once for each n of a claim when its work is done, from whichever
+/// worker thread did it (the callee must be thread-safe).
+using AuditProgressFn = std::function<void(int n)>;
+
 /// Decides a claim. `threads` = 0 uses every core. Throws InputError for a
 /// claim the method cannot answer (a side it does not define).
-Verdict audit_claim(const Claim& claim, int threads = 0);
+Verdict audit_claim(const Claim& claim, int threads = 0, const AuditProgressFn& progress = {});
+
+/// What deciding the claim will cost, from probes of its own per-n work
+/// (estimate_per_n; about half a second at most). A simulated claim's probes
+/// draw at most 64 replicates per cell; the rest is timed on one cell and
+/// scaled. An inconclusive simulated claim is also decided exactly
+/// afterwards, which this does not include.
+WorkEstimate estimate_audit(const Claim& claim, int threads = 0);
 
 const char* outcome_name(Outcome o);
 

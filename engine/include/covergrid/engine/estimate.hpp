@@ -9,6 +9,8 @@
 #include "covergrid/engine/scenario.hpp"
 
 #include <cstdint>
+#include <functional>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -39,6 +41,40 @@ struct RunEstimate {
 /// grow as needed, so the time is a lower bound (the first round only).
 RunEstimate estimate_run(const Scenario& scenario, const Plan& plan, const std::vector<std::size_t>& todo,
                          int threads);
+
+/// What a job of independent per-n steps will cost: an audit claim (every n
+/// of the claim) or a sample-size plan (at most every n of its range). One
+/// n's cost is fitted as cost(n) = seconds_at_ref * (n / ref_n)^exponent
+/// from timed probes of the job's own step, and summed over every n.
+struct WorkEstimate {
+  double seconds = 0;              // wall time on `threads` threads (rough: within ~2x)
+  double calibration_seconds = 0;  // time the probes took
+  std::size_t probes = 0;          // distinct n timed
+  int largest_probe = 0;           // the largest n timed
+  int ref_n = 1;                   // the fit: cost(n) = seconds_at_ref * (n / ref_n)^exponent
+  double seconds_at_ref = 0, exponent = 1;
+  int threads = 1;
+
+  /// One n's fitted cost on one thread, in seconds.
+  double cost(int n) const;
+  bool large() const { return seconds > large_run_seconds; }
+};
+
+/// The clock the probes read, in seconds; replaceable so that tests can drive
+/// the fit with a synthetic cost instead of wall time.
+using Clock = std::function<double()>;
+double steady_seconds();
+
+/// Estimates running `step(n)` for every n of `ns` (ascending) spread over
+/// `threads` threads (0 = every hardware thread), plus `extra_seconds` of
+/// one-thread work that the caller costed itself (spread over the threads too). Probes, on one thread:
+/// the smallest n first, then n about four times the last one, never an n
+/// that the last probe predicts (growing like n^2) to overrun the budget of
+/// half a second, and none once the probes have taken 2 % of the per-n work.
+/// A step shorter than 0.2 ms is repeated to time it. The exponent is fitted
+/// through the two largest probes (clamped to [0, 3]; 1 with one probe).
+WorkEstimate estimate_per_n(std::span<const int> ns, int threads, const std::function<void(int)>& step,
+                            double extra_seconds = 0, const Clock& clock = steady_seconds);
 
 /// "about 3.2 h on 2 threads", "about 40 s on 2 threads", "under a second".
 std::string duration_words(double seconds);

@@ -11,6 +11,7 @@
 /// claims certainty the data cannot give (Wald's [0, 0] at x = 0 covers no
 /// p > 0), so an n at which any outcome x = 0..n gives one fails every width
 /// and margin requirement, whatever the other outcomes give.
+#include "covergrid/engine/estimate.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/scenario.hpp"
 
@@ -112,6 +113,10 @@ bool coverage_guaranteed(const PlanRequest& request);
 /// x reject without the table, closed_form_max_margin decides a margin-only
 /// requirement without it, coverage_guaranteed needs nothing).
 bool plan_meets(const PlanRequest& request, int n);
+
+/// What the search costs at most: every n of the range decided
+/// (estimate_per_n over plan_meets; the search usually decides far fewer).
+WorkEstimate estimate_plan(const PlanRequest& request, int threads = 0);
 
 /// The search. `threads` = 0 uses every core. Each n is decided on its own,
 /// so the result does not depend on the thread count.
