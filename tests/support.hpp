@@ -6,11 +6,23 @@
 
 #include <filesystem>
 #include <map>
+#include <stdexcept>
 #include <random>
 #include <string>
 #include <vector>
 
 namespace covergrid::test {
+
+/// A method whose lower limit fails at x = 7, as a Boost function does
+/// (std::overflow_error); every other limit is [0, 1].
+class FailsAtSeven final : public methods::IntervalMethod {
+ public:
+  double lower(int x, int, double) const override {
+    if (x == 7) throw std::overflow_error("Error in function boost::math::something: Overflow Error");
+    return 0.0;
+  }
+  double upper(int, int, double) const override { return 1.0; }
+};
 
 /// A fresh, empty folder under the system temp dir, removed on destruction.
 class ScratchDir {

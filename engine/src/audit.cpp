@@ -84,7 +84,7 @@ struct ExactRow {
 /// One n of an exact claim: everything the verdict reads.
 ExactRow exact_row(const Claim& c, int n) {
   const double t = c.threshold() - coverage_decision_slack;
-  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side);
+  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
   ExactRow r;
   if (c.kind == ClaimKind::minimum) {
     r.inf = coverage_infimum(table, c.p_lo, c.p_hi);
@@ -126,7 +126,7 @@ Verdict audit_exact(const Claim& c, int threads, const AuditProgressFn& progress
     v.worst_p = w.where;
     v.worst_from = w.from;
     v.worst_coverage = w.value;
-    const IntervalTable table = build_table(*c.method.method, v.worst_n, c.level, c.side);
+    const IntervalTable table = build_table(*c.method.method, v.worst_n, c.level, c.side, c.method.label);
     const auto m = metrics_beside(table, w.where, w.from, c.p_lo, c.p_hi);
     v.worst_miss_low = m[1];
     v.worst_miss_high = m[2];
@@ -169,7 +169,7 @@ std::vector<double> sim_points(const Claim& c) {
 /// out[0 .. ps.size()).
 void simulate_row(const Claim& c, int n, const std::vector<double>& ps, std::uint64_t replicates,
                   SimCell* out) {
-  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side);
+  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
   const std::vector<const IntervalTable*> tables = {&table};
   BinomialWindow window;
   CellDraws draws;
@@ -368,7 +368,7 @@ WorkEstimate estimate_audit(const Claim& c, int threads) {
     const std::vector<double> mid = {ps[ps.size() / 2]};
     BinomialWindow window;
     window.fill(n, mid[0]);
-    const IntervalTable table = build_table(*c.method.method, n, c.level, c.side);
+    const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
     const std::vector<const IntervalTable*> tables = {&table};
     CellDraws draws;
     std::uint64_t drawn = 0;

@@ -5,13 +5,30 @@
 #include <fmt/format.h>
 
 #include <exception>
+#include <string>
 
 namespace covergrid::engine {
+
+methods::Limits named_interval(const methods::IntervalMethod& method, int x, int n, double level,
+                               methods::Side side, std::string_view label) {
+  try {
+    return methods::interval(method, x, n, level, side);
+  } catch (const methods::ParameterError&) {
+    throw;
+  } catch (const std::exception& e) {
+    // Boost.Math and the root finders throw std::exceptions that say
+    // nothing of the input: name it so that a failing run can be redone.
+    throw methods::NumericalError(
+        fmt::format("{}numerical failure at x = {}, n = {}, level = {}, side = {}: {}",
+                    label.empty() ? std::string() : fmt::format("method '{}': ", label), x, n, level,
+                    methods::side_name(side), e.what()));
+  }
+}
 
 namespace {
 
 IntervalTable build(const methods::IntervalMethod& method, int n, double level, methods::Side side,
-                    bool mirror) {
+                    bool mirror, std::string_view label) {
   IntervalTable t;
   t.n = n;
   if (!method.supports(side)) {
@@ -33,18 +50,7 @@ IntervalTable build(const methods::IntervalMethod& method, int n, double level, 
       t.upper[i] = 1.0 - t.lower[j];
       t.overshoot[i] = t.overshoot[j];
     } else {
-      methods::Limits lim{};
-      try {
-        lim = methods::interval(method, x, n, level, side);
-      } catch (const methods::ParameterError&) {
-        throw;
-      } catch (const std::exception& e) {
-        // Boost.Math and the root finders throw std::exceptions that say
-        // nothing of the input: name it so that a failing run can be redone.
-        throw methods::NumericalError(
-            fmt::format("numerical failure at x = {}, n = {}, level = {}, side = {}: {}", x, n, level,
-                        methods::side_name(side), e.what()));
-      }
+      const methods::Limits lim = named_interval(method, x, n, level, side, label);
       t.lower[i] = lim.lower;
       t.upper[i] = lim.upper;
       t.overshoot[i] = (lim.raw_lower < 0.0 || lim.raw_upper > 1.0) ? 1.0 : 0.0;
@@ -60,13 +66,14 @@ IntervalTable build(const methods::IntervalMethod& method, int n, double level, 
 
 }  // namespace
 
-IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side) {
-  return build(method, n, level, side, false);
+IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side,
+                          std::string_view label) {
+  return build(method, n, level, side, false, label);
 }
 
 IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n, double level,
-                                   methods::Side side) {
-  return build(method, n, level, side, side == methods::Side::two_sided && method.symmetric());
+                                   methods::Side side, std::string_view label) {
+  return build(method, n, level, side, side == methods::Side::two_sided && method.symmetric(), label);
 }
 
 }  // namespace covergrid::engine

@@ -47,14 +47,8 @@ std::vector<Combo> combos_of(const Scenario& s) {
   return out;
 }
 
-/// A numerical failure names the method too (build_table names x, n, level
-/// and side), so that the run's one-line message says what to avoid.
 IntervalTable table_for(const Combo& c, int n) {
-  try {
-    return build_table(*c.method, n, c.level, c.side);
-  } catch (const methods::NumericalError& e) {
-    throw methods::NumericalError("method '" + *c.label + "': " + e.what());
-  }
+  return build_table(*c.method, n, c.level, c.side, *c.label);
 }
 
 /// Every combo's table at n, in parallel. Isolated, so that the waiting

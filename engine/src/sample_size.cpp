@@ -119,7 +119,7 @@ double closed_form_max_margin(const PlanRequest& q, int n) {
   if (!(id == "wald-half" || (id == "wilson" && q.side == Side::two_sided))) return -1;
   double best = 0;
   for (int x : {n / 2, (n + 1) / 2}) {
-    const methods::Limits l = methods::interval(*q.method.method, x, n, q.level, q.side);
+    const methods::Limits l = named_interval(*q.method.method, x, n, q.level, q.side, q.method.label);
     // One-sided bounds have a fixed end at 0 or 1 by definition; only the
     // computed end must be unclipped for the argument to hold.
     const bool clipped = (q.side != Side::upper_bound && l.raw_lower < 0.0) ||
@@ -131,7 +131,7 @@ double closed_form_max_margin(const PlanRequest& q, int n) {
 }
 
 PlanFigures plan_figures(const PlanRequest& q, int n) {
-  const IntervalTable t = build_table(*q.method.method, n, q.level, q.side);
+  const IntervalTable t = build_table(*q.method.method, n, q.level, q.side, q.method.label);
   PlanFigures f;
   f.n = n;
   const InfimumResult inf = coverage_infimum(t, q.p_lo, q.p_hi);
@@ -166,7 +166,7 @@ bool plan_meets(const PlanRequest& q, int n) {
     // interval at x = 0 or x = n, or a margin above the bound at the middle x
     // (the largest margin is at least any one x's).
     for (int x : {0, n, n / 2, (n + 1) / 2}) {
-      const methods::Limits l = methods::interval(*q.method.method, x, n, q.level, q.side);
+      const methods::Limits l = named_interval(*q.method.method, x, n, q.level, q.side, q.method.label);
       if (l.upper - l.lower <= zero_width_tolerance) return false;
       for (const auto& [r, value] : q.requirements)
         if (r == Requirement::max_margin && margin_of_error(l.lower, l.upper, x, n, q.side) > value)
@@ -182,7 +182,7 @@ bool plan_meets(const PlanRequest& q, int n) {
   // symmetric about 1/2, coverage and expected width symmetric in p, so half
   // the range decides (its mean equals the whole range's mean). The
   // registry's invariant tests hold every method that declares symmetry to it.
-  const IntervalTable t = build_table_mirrored(*q.method.method, n, q.level, q.side);
+  const IntervalTable t = build_table_mirrored(*q.method.method, n, q.level, q.side, q.method.label);
   if (precision && zero_widths(t).first >= 0) return false;
   const bool halve = q.side == Side::two_sided && q.method.method->symmetric() &&
                      std::fabs(q.p_lo + q.p_hi - 1.0) <= 1e-12 && q.p_lo < 0.5;

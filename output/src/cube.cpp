@@ -575,11 +575,21 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
       refuse_out_of_space(journal_path_, "");
     }
     end_ = header.size();
+    created_ = true;
   }
 }
 
 CubeWriter::~CubeWriter() {
   if (fd_ >= 0) ::close(fd_);
+}
+
+bool CubeWriter::discard_if_empty() {
+  if (!created_ || written_ > 0 || fd_ < 0) return false;
+  ::close(fd_);
+  fd_ = -1;
+  std::error_code ec;
+  fs::remove(journal_path_, ec);
+  return !ec;
 }
 
 std::vector<char> CubeWriter::completed() {
@@ -607,6 +617,7 @@ void CubeWriter::write_encoded(std::size_t chunk, const std::string& payload) {
     refuse_out_of_space(journal_path_, "");
   }
   offsets_[chunk] = static_cast<std::int64_t>(end_);
+  ++written_;
   end_ += record.size();
 }
 

@@ -156,8 +156,8 @@ std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& o
               double sum = 0, var = 0, cells = 0;
               for (std::size_t i : ns) {
                 const int n = static_cast<int>(cube.n[i]);
-                const auto ta = engine::build_table(*other.method, n, cube.levels[l], side);
-                const auto tb = engine::build_table(*leader.method, n, cube.levels[l], side);
+                const auto ta = engine::build_table(*other.method, n, cube.levels[l], side, other.label);
+                const auto tb = engine::build_table(*leader.method, n, cube.levels[l], side, leader.label);
                 const auto reps = cube.mc_replicates(mo, i);
                 for (std::size_t pi = 0; pi < cube.p.size(); ++pi) {
                   const auto c = engine::paired_difference(seed, mo, n, pi, cube.p[pi],

@@ -9,11 +9,13 @@
 // rounding bound for a sum of at most a few hundred pmf terms; p = 1e-300
 // puts P(X >= 1) <= n * 1e-300 (a proven bound), so 1e-15 leaves only Boost's
 // pmf rounding (Boost.Math 1.74, Debian 12).
+#include "covergrid/engine/audit.hpp"
 #include "covergrid/engine/binomial_window.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/plan.hpp"
 #include "covergrid/engine/run.hpp"
+#include "covergrid/engine/sample_size.hpp"
 #include "covergrid/methods/numerics.hpp"
 #include "covergrid/methods/registry.hpp"
 
@@ -28,20 +30,11 @@
 
 namespace e = covergrid::engine;
 namespace m = covergrid::methods;
+using covergrid::test::FailsAtSeven;
 
 namespace {
 
 double metric(const e::CellMetrics& c, e::Metric which) { return c[static_cast<std::size_t>(which)]; }
-
-/// A method whose lower limit fails at one x, as a Boost function does.
-class FailsAtSeven final : public m::IntervalMethod {
- public:
-  double lower(int x, int, double) const override {
-    if (x == 7) throw std::overflow_error("Error in function boost::math::something: Overflow Error");
-    return 0.0;
-  }
-  double upper(int, int, double) const override { return 1.0; }
-};
 
 }  // namespace
 
@@ -135,4 +128,44 @@ id = "wilson"
                     "lower-bound") != std::string::npos);
   }
   CHECK_FALSE(sink.finished);
+}
+
+TEST_CASE("a numerical failure in an audit or a plan names the method, x, n, level and side",
+          "[engine][extreme]") {
+  m::MethodInstance failing = m::make_instance("wilson", {});
+  failing.label = "fails-at-seven";
+  failing.method = std::make_shared<FailsAtSeven>();
+  const std::string expected =
+      "method 'fails-at-seven': numerical failure at x = 7, n = 12, level = 0.9, side = lower-bound";
+  e::Claim c;
+  c.method = failing;
+  c.level = 0.9;
+  c.side = m::Side::lower_bound;
+  c.n = {5, 12};
+  c.p_lo = 0.1;
+  c.p_hi = 0.9;
+  for (std::uint64_t replicates : {std::uint64_t{0}, std::uint64_t{100}}) {
+    c.replicates = replicates;
+    try {
+      (void)e::audit_claim(c, 1);
+      FAIL("no exception");
+    } catch (const m::NumericalError& err) {
+      CHECK(std::string(err.what()).find(expected) != std::string::npos);
+    }
+  }
+  e::PlanRequest q;
+  q.method = failing;
+  q.level = 0.9;
+  q.side = m::Side::lower_bound;
+  q.p_lo = 0.1;
+  q.p_hi = 0.9;
+  q.n_from = 12;
+  q.n_to = 12;
+  q.requirements = {{e::Requirement::min_coverage, 0.85}};
+  try {
+    (void)e::plan_sample_size(q, 1);
+    FAIL("no exception");
+  } catch (const m::NumericalError& err) {
+    CHECK(std::string(err.what()).find(expected) != std::string::npos);
+  }
 }

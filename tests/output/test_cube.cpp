@@ -365,3 +365,49 @@ TEST_CASE("summary tables are written from the cube", "[output][tables]") {
   CHECK(md.find("long-run property") != std::string::npos);
   CHECK(md.find("qualified statistician") != std::string::npos);
 }
+
+TEST_CASE("a run that fails before its first chunk leaves no journal behind", "[output][cube][resume]") {
+  ScratchDir dir("first-chunk");
+  auto s = scenario_from(R"(
+[grid]
+n = [12]
+p = [0.2, 0.5]
+levels = [0.9]
+sides = ["lower-bound"]
+[[method]]
+id = "wilson"
+)",
+                         dir.path().string());
+  s.methods.front().label = "fails-at-seven";
+  s.methods.front().method = std::make_shared<covergrid::test::FailsAtSeven>();
+  const auto plan = e::make_plan(s);
+  {
+    o::CubeWriter w(s, plan, false);
+    REQUIRE(fs::exists(o::journal_path(s.cube_path)));
+    CHECK_THROWS_WITH(e::run_scenario(s, w, {}), Catch::Contains("method 'fails-at-seven'"));
+    CHECK(w.discard_if_empty());
+  }
+  CHECK_FALSE(fs::exists(o::journal_path(s.cube_path)));
+  CHECK_FALSE(fs::exists(s.cube_path));
+  CHECK(o::inspect_output(s, false) == o::OutputState::fresh);
+  // A journal with a chunk in it, or one this writer did not create, stays.
+  const auto good = scenario_from(text, dir.path().string());
+  const auto good_plan = e::make_plan(good, 4);
+  {
+    o::CubeWriter w(good, good_plan, false);
+    std::atomic<bool> stop{false};
+    e::RunOptions opt;
+    opt.chunk_cells = 4;
+    opt.threads = 1;
+    opt.stop = &stop;
+    opt.progress = [&](std::size_t, std::size_t) { stop = true; };
+    REQUIRE(e::run_scenario(good, w, opt).interrupted);
+    CHECK_FALSE(w.discard_if_empty());
+  }
+  REQUIRE(fs::exists(o::journal_path(good.cube_path)));
+  {
+    o::CubeWriter w(good, good_plan, true);
+    CHECK_FALSE(w.discard_if_empty());
+  }
+  CHECK(fs::exists(o::journal_path(good.cube_path)));
+}

@@ -104,8 +104,10 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
               label_b, "n", "mean diff", "min diff", "max diff", "max |diff|/se");
         for (std::size_t ni = 0; ni < s.n.size(); ++ni) {
           const int n = s.n[ni];
-          const auto ta = engine::build_table(*s.methods[ia].method, n, s.levels[level], s.sides[side]);
-          const auto tb = engine::build_table(*s.methods[ib].method, n, s.levels[level], s.sides[side]);
+          const auto ta = engine::build_table(*s.methods[ia].method, n, s.levels[level], s.sides[side],
+                                              s.methods[ia].label);
+          const auto tb = engine::build_table(*s.methods[ib].method, n, s.levels[level], s.sides[side],
+                                              s.methods[ib].label);
           const auto reps = cube.mc_replicates(model, ni);
           const auto stored_a = cube.mc_row("coverage", model, side, level, ia, ni);
           double sum = 0, lo = HUGE_VAL, hi = -HUGE_VAL, zmax = 0;

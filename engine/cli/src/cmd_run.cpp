@@ -185,6 +185,8 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
     } catch (...) {
       std::signal(SIGINT, old_int);
       std::signal(SIGTERM, old_term);
+      // A run that fails before its first chunk leaves nothing behind.
+      writer.discard_if_empty();
       throw;
     }
     std::signal(SIGINT, old_int);
@@ -196,6 +198,11 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
         counts += fmt::format("{}rank {}: {}", r ? ", " : "", r, report.chunks_by_rank[r]);
       err << fmt::format("covergrid: {} ranks computed {} chunks ({})\n", report.chunks_by_rank.size(),
                          report.chunks_computed, counts);
+    }
+    if ((!report.failure.empty() || report.interrupted) && writer.discard_if_empty()) {
+      err << fmt::format("covergrid: {}; the run stopped before its first chunk and left nothing behind\n",
+                         report.failure.empty() ? "stopped" : report.failure);
+      return exit_internal;
     }
     if (!report.failure.empty()) {
       err << fmt::format(

@@ -5,6 +5,7 @@
 /// (design principle 2).
 #include "covergrid/methods/interval.hpp"
 
+#include <string_view>
 #include <vector>
 
 namespace covergrid::engine {
@@ -22,9 +23,19 @@ struct IntervalTable {
   bool monotone = false;           // lower and upper both non-decreasing in x
 };
 
+/// methods::interval, with a numerical failure turned into a
+/// methods::NumericalError naming x, n, level, side and (when given) the
+/// method's label.
+methods::Limits named_interval(const methods::IntervalMethod& method, int x, int n, double level,
+                               methods::Side side, std::string_view label = {});
+
 /// Builds the table; a method that does not support `side` gives an
-/// unsupported table (its metrics are NaN).
-IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side);
+/// unsupported table (its metrics are NaN). A limit that cannot be computed
+/// throws methods::NumericalError naming x, n, level and side, and the
+/// method's `label` when one is given, so that every command's one-line
+/// message says what to avoid.
+IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side,
+                          std::string_view label = {});
 
 /// The same table from half the work for a method that declares x <-> n - x
 /// symmetry, two-sided: limits for x <= n/2 computed, the rest mirrored
@@ -32,6 +43,6 @@ IntervalTable build_table(const methods::IntervalMethod& method, int n, double l
 /// Other methods and sides fall back to build_table(). Used by searches
 /// (plan) that decide, never by the cube.
 IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n, double level,
-                                   methods::Side side);
+                                   methods::Side side, std::string_view label = {});
 
 }  // namespace covergrid::engine

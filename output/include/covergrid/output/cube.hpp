@@ -115,6 +115,11 @@ class CubeWriter final : public engine::ResultSink {
   /// After a resume: one line saying which damaged journal records were
   /// dropped and why (their chunks are computed again); "" when none were.
   const std::string& resume_note() const { return resume_note_; }
+  /// After a run failed or stopped: removes the journal when this writer
+  /// created it and no chunk reached it, so that a run that fails before its
+  /// first chunk leaves nothing behind; true when it did. The writer is then
+  /// unusable.
+  bool discard_if_empty();
 
  private:
   engine::ChunkResult read_record(std::size_t chunk) const;
@@ -128,6 +133,8 @@ class CubeWriter final : public engine::ResultSink {
   int fd_ = -1;
   std::vector<std::int64_t> offsets_;  // record offset per chunk, -1 = not written
   std::uint64_t end_ = 0;              // end of the last valid record
+  bool created_ = false;               // this writer created the journal (no resume)
+  std::size_t written_ = 0;            // chunks this writer appended
   std::uint32_t version_ = 2;          // the journal's format version (records are written in it)
   std::string resume_note_;
   SplitStats split_stats_;
