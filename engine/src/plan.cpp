@@ -1,8 +1,35 @@
 #include "covergrid/engine/plan.hpp"
 
 #include <algorithm>
+#include <stdexcept>
+#include <string>
 
 namespace covergrid::engine {
+
+ChunkList::ChunkList(std::size_t models, std::size_t rows, std::size_t points, std::size_t n_block,
+                     std::size_t p_block)
+    : models_(models),
+      rows_(rows),
+      points_(points),
+      n_block_(std::max<std::size_t>(1, n_block)),
+      p_block_(std::max<std::size_t>(1, p_block)),
+      n_blocks_((rows + n_block_ - 1) / n_block_),
+      p_blocks_((points + p_block_ - 1) / p_block_) {}
+
+ChunkSpec ChunkList::operator[](std::size_t id) const {
+  // Model-major, then n-block, then p-block.
+  const std::size_t per_model = n_blocks_ * p_blocks_;
+  const std::size_t m = id / per_model, in_model = id % per_model;
+  const std::size_t nb = (in_model / p_blocks_) * n_block_, pb = (in_model % p_blocks_) * p_block_;
+  return {id, m, nb, std::min(n_block_, rows_ - nb), pb, std::min(p_block_, points_ - pb)};
+}
+
+ChunkSpec ChunkList::at(std::size_t id) const {
+  if (id >= size())
+    throw std::out_of_range("chunk " + std::to_string(id) + " is beyond the plan's " +
+                            std::to_string(size()));
+  return (*this)[id];
+}
 
 Plan make_plan(const Scenario& scenario, std::size_t target_cells) {
   Plan plan;
@@ -10,12 +37,7 @@ Plan make_plan(const Scenario& scenario, std::size_t target_cells) {
   const std::size_t points = scenario.p.size();
   plan.p_block = std::max<std::size_t>(1, std::min(points, target_cells));
   plan.n_block = std::max<std::size_t>(1, std::min(rows, target_cells / plan.p_block));
-  std::size_t id = 0;
-  for (std::size_t m = 0; m < scenario.models.size(); ++m)
-    for (std::size_t nb = 0; nb < rows; nb += plan.n_block)
-      for (std::size_t pb = 0; pb < points; pb += plan.p_block)
-        plan.chunks.push_back(
-            {id++, m, nb, std::min(plan.n_block, rows - nb), pb, std::min(plan.p_block, points - pb)});
+  plan.chunks = ChunkList(scenario.models.size(), rows, points, plan.n_block, plan.p_block);
   return plan;
 }
 

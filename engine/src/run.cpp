@@ -280,10 +280,10 @@ namespace {
 /// needs them and dropped when the last chunk of that row is written.
 class RowCache {
  public:
-  RowCache(const Scenario& s, const std::vector<Combo>& combos, const std::vector<const ChunkSpec*>& todo)
+  RowCache(const Scenario& s, const std::vector<Combo>& combos, const std::vector<ChunkSpec>& todo)
       : scenario_(s), combos_(combos) {
-    for (const ChunkSpec* c : todo)
-      for (std::size_t i = 0; i < c->n_count; ++i) ++remaining_[{c->model, c->n_begin + i}];
+    for (const ChunkSpec& c : todo)
+      for (std::size_t i = 0; i < c.n_count; ++i) ++remaining_[{c.model, c.n_begin + i}];
   }
 
   const RowTables* acquire(std::size_t model, std::size_t n_index) {
@@ -465,7 +465,8 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
   std::vector<char> selected(plan.chunks.size(), options.only_chunks ? 0 : 1);
   if (options.only_chunks)
     for (std::size_t id : *options.only_chunks) selected.at(id) = 1;
-  std::vector<const ChunkSpec*> todo;
+  // Chunks are values computed from their ids (the plan stores none).
+  std::vector<ChunkSpec> todo;
   std::size_t cells_done = 0, cells_total = 0;
   for (const auto& c : plan.chunks) {
     if (!selected[c.id]) continue;
@@ -475,7 +476,7 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
       ++report.chunks_resumed;
       cells_done += c.n_count * c.p_count;
     } else {
-      todo.push_back(&c);
+      todo.push_back(c);
     }
   }
 
@@ -515,7 +516,7 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
                         [&](std::size_t k) -> Result {
                           if (failure.failed()) return nullptr;
                           try {
-                            const ChunkSpec* c = todo[k];
+                            const ChunkSpec* c = &todo[k];
                             std::vector<const RowTables*> rows;
                             for (std::size_t i = 0; i < c->n_count; ++i)
                               rows.push_back(cache.acquire(c->model, c->n_begin + i));

@@ -7,6 +7,9 @@
 
 #include <catch2/catch.hpp>
 
+#include <array>
+#include <stdexcept>
+
 #include <algorithm>
 #include <atomic>
 #include <optional>
@@ -57,6 +60,34 @@ TEST_CASE("the plan covers every cell exactly once", "[engine][plan]") {
     INFO("target " << target);
     CHECK(std::all_of(seen.begin(), seen.end(), [](int v) { return v == 1; }));
   }
+}
+
+TEST_CASE("chunks are computed from their index in the documented order", "[engine][plan]") {
+  // The order the journal, the shard cut and the cube rely on: model-major,
+  // then n-block, then p-block, the last block of each axis shorter.
+  for (const auto& [models, rows, points, nb, pb] :
+       std::vector<std::array<std::size_t, 5>>{{1, 10, 7, 3, 2}, {2, 1, 5000, 1, 2048}, {3, 17, 1, 16, 1}}) {
+    const e::ChunkList list(models, rows, points, nb, pb);
+    std::vector<e::ChunkSpec> expected;
+    for (std::size_t m = 0; m < models; ++m)
+      for (std::size_t n = 0; n < rows; n += nb)
+        for (std::size_t p = 0; p < points; p += pb)
+          expected.push_back({expected.size(), m, n, std::min(nb, rows - n), p, std::min(pb, points - p)});
+    REQUIRE(list.size() == expected.size());
+    std::size_t k = 0;
+    for (const auto& c : list) CHECK(c == expected[k++]);
+    CHECK(list.back() == expected.back());
+    CHECK_THROWS_AS(list.at(list.size()), std::out_of_range);
+  }
+  // A grid at the scenario limit (10^9 cells: 10^6 n by 1000 p) plans in
+  // constant memory: 500,000 chunks, none of them stored.
+  const e::ChunkList big(1, 1000000, 1000, 2, 1000);
+  CHECK(big.size() == 500000);
+  const auto last = big[499999];
+  CHECK(last.n_begin == 999998);
+  CHECK(last.n_count == 2);
+  CHECK(last.p_count == 1000);
+  CHECK(sizeof(e::Plan) < 128);
 }
 
 TEST_CASE("results do not depend on the thread count", "[engine][determinism]") {
