@@ -59,12 +59,13 @@ void for_each_index(std::size_t count, int threads, F body) {
 /// Coverage and misses just beside p (the side the infimum is approached
 /// from), by direct summation. The offset 2e-12 steps past endpoints that
 /// coverage_infimum merged (1e-12) into the covered set of that side.
-std::array<double, 3> metrics_beside(const IntervalTable& t, double p, int from, double p_lo, double p_hi) {
+std::array<double, 3> metrics_beside(const IntervalTable& t, const SamplingModel& model, double p, int from,
+                                     double p_lo, double p_hi) {
   const double q = std::clamp(p + from * 2e-12, p_lo, p_hi);
   double cov = 0, low = 0, high = 0;
   for (int x = 0; x <= t.n; ++x) {
     const std::size_t i = static_cast<std::size_t>(x);
-    const double w = methods::binomial_pmf(x, t.n, q);
+    const double w = model.pmf(x, t.n, q);
     if (t.upper[i] < q)
       low += w;
     else if (t.lower[i] > q)
@@ -87,14 +88,14 @@ ExactRow exact_row(const Claim& c, int n) {
   const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
   ExactRow r;
   if (c.kind == ClaimKind::minimum) {
-    r.inf = coverage_infimum(table, c.p_lo, c.p_hi);
+    r.inf = coverage_infimum(table, c.p_lo, c.p_hi, -HUGE_VAL, *c.model);
   } else {
-    r.mean = coverage_uniform_mean(table, c.p_lo, c.p_hi);
-    const auto m = miss_uniform_means(table, c.p_lo, c.p_hi);
+    r.mean = coverage_uniform_mean(table, c.p_lo, c.p_hi, *c.model);
+    const auto m = miss_uniform_means(table, c.p_lo, c.p_hi, *c.model);
     r.mean_low = m[0];
     r.mean_high = m[1];
   }
-  r.below = coverage_measure_below(table, c.p_lo, c.p_hi, t);
+  r.below = coverage_measure_below(table, c.p_lo, c.p_hi, t, *c.model);
   return r;
 }
 
@@ -127,7 +128,7 @@ Verdict audit_exact(const Claim& c, int threads, const AuditProgressFn& progress
     v.worst_from = w.from;
     v.worst_coverage = w.value;
     const IntervalTable table = build_table(*c.method.method, v.worst_n, c.level, c.side, c.method.label);
-    const auto m = metrics_beside(table, w.where, w.from, c.p_lo, c.p_hi);
+    const auto m = metrics_beside(table, *c.model, w.where, w.from, c.p_lo, c.p_hi);
     v.worst_miss_low = m[1];
     v.worst_miss_high = m[2];
   } else {
@@ -171,10 +172,10 @@ void simulate_row(const Claim& c, int n, const std::vector<double>& ps, std::uin
                   SimCell* out) {
   const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
   const std::vector<const IntervalTable*> tables = {&table};
-  BinomialWindow window;
+  ProbabilityWindow window;
   CellDraws draws;
   for (std::size_t j = 0; j < ps.size(); ++j) {
-    window.fill(n, ps[j]);
+    c.model->window(n, ps[j], window);
     const CellStream stream(c.seed, 0, static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(j));
     simulate_cell(window, stream, ReplicateRule{replicates, 0, 0}, tables, ps[j], draws);
     const McMetrics m = mc_metrics(table, window, draws, ps[j]);
@@ -366,8 +367,8 @@ WorkEstimate estimate_audit(const Claim& c, int threads) {
   if (c.replicates > probe) {
     const int n = c.n[c.n.size() / 2];
     const std::vector<double> mid = {ps[ps.size() / 2]};
-    BinomialWindow window;
-    window.fill(n, mid[0]);
+    ProbabilityWindow window;
+    c.model->window(n, mid[0], window);
     const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
     const std::vector<const IntervalTable*> tables = {&table};
     CellDraws draws;

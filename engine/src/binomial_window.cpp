@@ -9,13 +9,6 @@ namespace covergrid::engine {
 
 namespace {
 
-void running_sums(const std::vector<double>& w, std::vector<double>& cum) {
-  cum.resize(w.size() + 1);
-  double s = 0;
-  cum[0] = 0;
-  for (std::size_t i = 0; i < w.size(); ++i) cum[i + 1] = (s += w[i]);
-}
-
 /// 1/k for k = 0..size-1 (entry 0 unused), per thread: the ratio recurrence
 /// then needs no division per term, which was most of the window's cost.
 /// Grown on demand up to 2^20 entries (8 MiB); beyond that we divide.
@@ -32,12 +25,16 @@ const std::vector<double>& reciprocals(std::size_t need) {
 
 }  // namespace
 
-void BinomialWindow::fill(int n, double p) {
+void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
+  auto& w = out.w;
+  int& lo = out.lo;
+  int& hi = out.hi;
   w.clear();
+  out.tail_bound = 2 * tail_bound_per_side;
   if (p <= 0.0 || p >= 1.0) {
     lo = hi = (p <= 0.0 ? 0 : n);
     w.push_back(1.0);
-    running_sums(w, cum);
+    out.sum_up();
     return;
   }
   const double q = 1.0 - p;
@@ -75,7 +72,7 @@ void BinomialWindow::fill(int n, double p) {
     w.push_back(term);
   }
   hi = k;
-  running_sums(w, cum);
+  out.sum_up();
 }
 
 }  // namespace covergrid::engine

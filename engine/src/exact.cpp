@@ -8,6 +8,8 @@
 #include <cmath>
 #include <limits>
 #include <set>
+#include <stdexcept>
+#include <string>
 #include <vector>
 
 namespace covergrid::engine {
@@ -33,7 +35,7 @@ void width_moments(const double* width, const double* w, std::size_t size, CellM
   m[index(Metric::width_sd)] = std::sqrt(std::max(0.0, s2 - s1 * s1));
 }
 
-double sparse_mass(const std::vector<int>& xs, const BinomialWindow& window) {
+double sparse_mass(const std::vector<int>& xs, const ProbabilityWindow& window) {
   double sum = 0;
   for (int x : xs)
     if (x >= window.lo && x <= window.hi) sum += window.w[static_cast<std::size_t>(x - window.lo)];
@@ -42,7 +44,7 @@ double sparse_mass(const std::vector<int>& xs, const BinomialWindow& window) {
 
 }  // namespace
 
-CellMetrics exact_metrics_scan(const IntervalTable& table, const BinomialWindow& window, double p) {
+CellMetrics exact_metrics_scan(const IntervalTable& table, const ProbabilityWindow& window, double p) {
   CellMetrics m;
   if (!table.supported) {
     m.fill(nan);
@@ -68,7 +70,7 @@ CellMetrics exact_metrics_scan(const IntervalTable& table, const BinomialWindow&
   return m;
 }
 
-CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& window, double p) {
+CellMetrics exact_metrics(const IntervalTable& table, const ProbabilityWindow& window, double p) {
   if (!table.supported || !table.monotone) return exact_metrics_scan(table, window, p);
   CellMetrics m;
   const double* lower = table.lower.data() + window.lo;
@@ -87,12 +89,12 @@ CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& wind
   return m;
 }
 
-double coverage_by_enumeration(const IntervalTable& table, double p) {
+double coverage_by_enumeration(const IntervalTable& table, double p, const SamplingModel& model) {
   if (!table.supported) return nan;
   double cov = 0;
   for (int x = 0; x <= table.n; ++x) {
     const std::size_t i = static_cast<std::size_t>(x);
-    if (table.lower[i] <= p && p <= table.upper[i]) cov += methods::binomial_pmf(x, table.n, p);
+    if (table.lower[i] <= p && p <= table.upper[i]) cov += model.pmf(x, table.n, p);
   }
   return cov;
 }
@@ -135,18 +137,19 @@ class CoveredSet {
   int n_;
 };
 
-double set_probability(const CoveredSet& s, double p) {
+double set_probability(const CoveredSet& s, double p, const SamplingModel& model) {
   if (s.empty()) return 0.0;
-  if (s.contiguous()) return run_probability(s.first(), s.last(), s.n(), p);
+  if (s.contiguous()) return model.run_probability(s.first(), s.last(), s.n(), p);
   double sum = 0;
   for (int x = 0; x <= s.n(); ++x)
-    if (s.contains(x)) sum += methods::binomial_pmf(x, s.n(), p);
+    if (s.contains(x)) sum += model.pmf(x, s.n(), p);
   return sum;
 }
 
 }  // namespace
 
-InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi, double stop_below) {
+InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi, double stop_below,
+                               const SamplingModel& model) {
   InfimumResult best;
   if (!table.supported) return {nan, nan, 0, false};
   const int n = table.n;
@@ -179,7 +182,7 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
     double at = 0;
     for (int x = 0; x <= n; ++x) {
       const std::size_t i = static_cast<std::size_t>(x);
-      if (table.lower[i] <= p_lo && p_lo <= table.upper[i]) at += methods::binomial_pmf(x, n, p_lo);
+      if (table.lower[i] <= p_lo && p_lo <= table.upper[i]) at += model.pmf(x, n, p_lo);
     }
     consider(at, p_lo, 0);
   }
@@ -194,11 +197,15 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
     constexpr int points = 33;
     for (int i = 0; i < points; ++i) {
       const double t = a + (b - a) * i / (points - 1);
-      consider(set_probability(covered, t), t, i == 0 ? +1 : (i == points - 1 ? -1 : 0));
+      consider(set_probability(covered, t, model), t, i == 0 ? +1 : (i == points - 1 ? -1 : 0));
     }
   };
+  // A segment's ends decide it only for a contiguous run of a model whose
+  // runs are unimodal in p; otherwise the segment is searched densely.
+  const bool unimodal = model.unimodal_runs();
+  auto ends_decide = [&] { return unimodal && covered.contiguous(); };
   double left = p_lo;
-  if (covered.contiguous()) consider(set_probability(covered, p_lo), p_lo, +1);
+  if (ends_decide()) consider(set_probability(covered, p_lo, model), p_lo, +1);
   std::size_t e = 0;
   while (e < events.size()) {
     // Endpoints closer than endpoint_merge_tolerance are one event: limits are
@@ -213,41 +220,37 @@ InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p
       ++group_end;
     }
     const double last = events[group_end - 1].p;
-    if (!covered.contiguous())
+    if (!ends_decide())
       refine(left, at);
     else if (entries)
-      consider(set_probability(covered, at), at, -1);
+      consider(set_probability(covered, at, model), at, -1);
     // Entries first (an x that also leaves within the group never joins), then exits.
     for (std::size_t g = e; g < group_end; ++g)
       if (events[g].enters && table.upper[static_cast<std::size_t>(events[g].x)] > last)
         covered.set(events[g].x, true);
     for (std::size_t g = e; g < group_end; ++g)
       if (!events[g].enters) covered.set(events[g].x, false);
-    if (exits && covered.contiguous()) consider(set_probability(covered, last), last, +1);
+    if (exits && ends_decide()) consider(set_probability(covered, last, model), last, +1);
     e = group_end;
     left = last;
     if (best.stopped) return best;
   }
-  if (!covered.contiguous())
+  if (!ends_decide())
     refine(left, p_hi);
   else
-    consider(set_probability(covered, p_hi), p_hi, -1);
+    consider(set_probability(covered, p_hi, model), p_hi, -1);
   // The point value at p_hi (included in the closed range).
   {
     double at = 0;
     for (int x = 0; x <= n; ++x) {
       const std::size_t i = static_cast<std::size_t>(x);
-      if (table.lower[i] <= p_hi && p_hi <= table.upper[i]) at += methods::binomial_pmf(x, n, p_hi);
+      if (table.lower[i] <= p_hi && p_hi <= table.upper[i]) at += model.pmf(x, n, p_hi);
     }
     consider(at, p_hi, 0);
   }
   return best;
 }
 
-namespace {
-
-/// The integral of P(X = x) over p in [a, b] for X ~ Bin(n, p), times n + 1:
-/// I_b - I_a for Beta(x+1, n-x+1), taken on the smaller-tail side.
 double beta_mass(int x, int n, double a, double b) {
   if (b <= a) return 0.0;
   const double s = x + 1.0, t = n - x + 1.0;
@@ -257,39 +260,52 @@ double beta_mass(int x, int n, double a, double b) {
   return 1.0 - methods::beta_cdf(s, t, a) - methods::beta_ccdf(s, t, b);
 }
 
+namespace {
+
+/// The model's closed-form mass of x over [a, b] (see uniform_mass).
+double uniform_mass_of(const SamplingModel& model, int x, int n, double a, double b) {
+  if (b <= a) return 0.0;
+  const auto m = model.uniform_mass(x, n, a, b);
+  if (!m)
+    throw std::logic_error("the " + std::string(model.kind()) + " model has no closed-form mass over p");
+  return *m;
+}
+
 }  // namespace
 
-double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi) {
+double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi,
+                             const SamplingModel& model) {
   if (!table.supported) return nan;
   const int n = table.n;
-  if (p_hi <= p_lo) return coverage_by_enumeration(table, p_lo);
+  if (p_hi <= p_lo) return coverage_by_enumeration(table, p_lo, model);
   double sum = 0;
   for (int x = 0; x <= n; ++x) {
     const std::size_t i = static_cast<std::size_t>(x);
-    sum += beta_mass(x, n, std::max(table.lower[i], p_lo), std::min(table.upper[i], p_hi));
+    sum += uniform_mass_of(model, x, n, std::max(table.lower[i], p_lo), std::min(table.upper[i], p_hi));
   }
-  return sum / ((n + 1.0) * (p_hi - p_lo));
+  return sum / (model.mass_scale(n) * (p_hi - p_lo));
 }
 
-std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo, double p_hi) {
+std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo, double p_hi,
+                                         const SamplingModel& model) {
   if (!table.supported) return {nan, nan};
   const int n = table.n;
   if (p_hi <= p_lo) {
     double low = 0, high = 0;
     for (int x = 0; x <= n; ++x) {
       const std::size_t i = static_cast<std::size_t>(x);
-      if (table.upper[i] < p_lo) low += methods::binomial_pmf(x, n, p_lo);
-      if (table.lower[i] > p_lo) high += methods::binomial_pmf(x, n, p_lo);
+      if (table.upper[i] < p_lo) low += model.pmf(x, n, p_lo);
+      if (table.lower[i] > p_lo) high += model.pmf(x, n, p_lo);
     }
     return {low, high};
   }
   double low = 0, high = 0;
   for (int x = 0; x <= n; ++x) {
     const std::size_t i = static_cast<std::size_t>(x);
-    low += beta_mass(x, n, std::max(table.upper[i], p_lo), p_hi);   // U_x < p
-    high += beta_mass(x, n, p_lo, std::min(table.lower[i], p_hi));  // L_x > p
+    low += uniform_mass_of(model, x, n, std::max(table.upper[i], p_lo), p_hi);   // U_x < p
+    high += uniform_mass_of(model, x, n, p_lo, std::min(table.lower[i], p_hi));  // L_x > p
   }
-  const double scale = (n + 1.0) * (p_hi - p_lo);
+  const double scale = model.mass_scale(n) * (p_hi - p_lo);
   return {low / scale, high / scale};
 }
 
@@ -316,7 +332,8 @@ double unimodal_measure_below(F f, double a, double b, double threshold) {
 
 }  // namespace
 
-BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, double p_hi, double threshold) {
+BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, double p_hi, double threshold,
+                                    const SamplingModel& model) {
   BelowMeasure out;
   if (!table.supported) return {nan, false};
   const int n = table.n;
@@ -364,16 +381,20 @@ BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, dou
         last = covered.last();
       }
     }
-    if (table.monotone || covered.contiguous()) {
-      out.measure += unimodal_measure_below([&](double p) { return run_probability(first, last, n, p); }, a,
-                                            b, threshold);
+    const bool run = table.monotone || covered.contiguous();
+    auto coverage_at = [&](double p) {
+      return run ? model.run_probability(first, last, n, p) : set_probability(covered, p, model);
+    };
+    if (run && model.unimodal_runs()) {
+      out.measure += unimodal_measure_below(coverage_at, a, b, threshold);
     } else {
-      // A covered set with gaps need not be unimodal: sampled, and flagged.
+      // A covered set with gaps, or a run of a model not known to be
+      // unimodal, need not be unimodal in p: sampled, and flagged.
       out.approximate = true;
       constexpr int points = 65;
       int below = 0;
       for (int i = 0; i < points; ++i)
-        if (set_probability(covered, a + (b - a) * (i + 0.5) / points) < threshold) ++below;
+        if (coverage_at(a + (b - a) * (i + 0.5) / points) < threshold) ++below;
       out.measure += (b - a) * below / points;
     }
   }

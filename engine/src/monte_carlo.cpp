@@ -12,7 +12,7 @@ namespace {
 
 constexpr std::size_t uniform_block = 4096;
 
-void draw_range(const WindowSampler& sampler, const BinomialWindow& window, const CellStream& stream,
+void draw_range(const WindowSampler& sampler, const ProbabilityWindow& window, const CellStream& stream,
                 std::uint64_t first, std::uint64_t count, std::vector<std::uint64_t>& counts) {
   thread_local std::vector<double> u(uniform_block);
   for (std::uint64_t done = 0; done < count; done += uniform_block) {
@@ -22,7 +22,7 @@ void draw_range(const WindowSampler& sampler, const BinomialWindow& window, cons
   }
 }
 
-double covered_count(const IntervalTable& t, const BinomialWindow& window, const CellDraws& d, double p) {
+double covered_count(const IntervalTable& t, const ProbabilityWindow& window, const CellDraws& d, double p) {
   double k = 0;
   for (std::size_t i = 0; i < d.counts.size(); ++i) {
     const std::size_t x = static_cast<std::size_t>(window.lo) + i;
@@ -33,7 +33,7 @@ double covered_count(const IntervalTable& t, const BinomialWindow& window, const
 
 }  // namespace
 
-void simulate_cell(const BinomialWindow& window, const CellStream& stream, const ReplicateRule& rule,
+void simulate_cell(const ProbabilityWindow& window, const CellStream& stream, const ReplicateRule& rule,
                    const std::vector<const IntervalTable*>& tables, double p, CellDraws& draws) {
   draws.counts.assign(window.w.size(), 0);
   draws.replicates = 0;
@@ -57,7 +57,7 @@ void simulate_cell(const BinomialWindow& window, const CellStream& stream, const
   }
 }
 
-McMetrics mc_metrics(const IntervalTable& t, const BinomialWindow& window, const CellDraws& d, double p) {
+McMetrics mc_metrics(const IntervalTable& t, const ProbabilityWindow& window, const CellDraws& d, double p) {
   McMetrics m;
   if (!t.supported || d.replicates == 0) {
     m.fill(std::numeric_limits<double>::quiet_NaN());
@@ -97,9 +97,10 @@ McMetrics mc_metrics(const IntervalTable& t, const BinomialWindow& window, const
 namespace covergrid::engine {
 
 PairedCell paired_difference(std::uint64_t seed, std::size_t model, int n, std::size_t p_index, double p,
-                             std::uint64_t replicates, const IntervalTable& a, const IntervalTable& b) {
-  BinomialWindow window;
-  window.fill(n, p);
+                             std::uint64_t replicates, const IntervalTable& a, const IntervalTable& b,
+                             const SamplingModel& sampling) {
+  ProbabilityWindow window;
+  sampling.window(n, p, window);
   const CellStream stream(seed, static_cast<std::uint32_t>(model), static_cast<std::uint32_t>(n),
                           static_cast<std::uint32_t>(p_index));
   CellDraws draws;

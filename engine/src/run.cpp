@@ -81,7 +81,8 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
     r.mc_replicates.assign(cells, nan);
   }
   const ReplicateRule rule{scenario.replicates, scenario.target_se, scenario.max_replicates};
-  BinomialWindow window;  // one window per cell serves both sources
+  const SamplingModel& model = *scenario.models[chunk.model].model;
+  ProbabilityWindow window;  // one window per cell serves both sources
   CellDraws draws;
   std::vector<const IntervalTable*> row_tables(combos);
   for (std::size_t i = 0; i < chunk.n_count; ++i) {
@@ -90,7 +91,7 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
     for (std::size_t j = 0; j < chunk.p_count; ++j) {
       const std::size_t p_index = chunk.p_begin + j;
       const double p = scenario.p[p_index];
-      window.fill(n, p);
+      model.window(n, p, window);
       if (r.has_exact)
         for (std::size_t c = 0; c < combos; ++c) {
           const CellMetrics m = exact_metrics(*row_tables[c], window, p);
@@ -146,14 +147,14 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
       for (std::size_t i = 0; i < chunk.n_count; ++i) {
         const IntervalTable& t = (*tables[i])[c];
         const std::size_t at = c * chunk.n_count + i;
-        const InfimumResult inf = coverage_infimum(t, p_lo, p_hi);
+        const InfimumResult inf = coverage_infimum(t, p_lo, p_hi, -HUGE_VAL, model);
         r.row_stats[index(Stat::inf_coverage) - grid_stat_count][at] = inf.value;
         r.row_stats[index(Stat::inf_coverage_p) - grid_stat_count][at] = inf.where;
         r.row_stats[index(Stat::inf_coverage_from) - grid_stat_count][at] = t.supported ? inf.from : nan;
         r.row_stats[index(Stat::inf_refined) - grid_stat_count][at] =
             t.supported ? (inf.refined ? 1.0 : 0.0) : nan;
         r.row_stats[index(Stat::mean_coverage_continuous) - grid_stat_count][at] =
-            coverage_uniform_mean(t, p_lo, p_hi);
+            coverage_uniform_mean(t, p_lo, p_hi, model);
       }
   }
   return r;

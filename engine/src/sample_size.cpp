@@ -75,8 +75,9 @@ double largest_margin(const IntervalTable& t, Side side) {
   return m;
 }
 
-double expected_width(const IntervalTable& t, BinomialWindow& window, double p) {
-  window.fill(t.n, p);
+double expected_width(const IntervalTable& t, const SamplingModel& model, ProbabilityWindow& window,
+                      double p) {
+  model.window(t.n, p, window);
   double sum = 0;
   for (std::size_t i = 0; i < window.w.size(); ++i)
     sum += window.w[i] * t.width[static_cast<std::size_t>(window.lo) + i];
@@ -85,15 +86,16 @@ double expected_width(const IntervalTable& t, BinomialWindow& window, double p) 
 
 }  // namespace
 
-std::pair<double, double> max_expected_width(const IntervalTable& t, double p_lo, double p_hi) {
-  BinomialWindow window;
-  if (p_hi <= p_lo) return {expected_width(t, window, p_lo), p_lo};
+std::pair<double, double> max_expected_width(const IntervalTable& t, double p_lo, double p_hi,
+                                             const SamplingModel& model) {
+  ProbabilityWindow window;
+  if (p_hi <= p_lo) return {expected_width(t, model, window, p_lo), p_lo};
   constexpr int points = 129;
   int best = 0;
   double best_value = -1;
   for (int i = 0; i < points; ++i) {
     const double p = i + 1 == points ? p_hi : p_lo + (p_hi - p_lo) * i / (points - 1);
-    const double w = expected_width(t, window, p);
+    const double w = expected_width(t, model, window, p);
     if (w > best_value) {
       best_value = w;
       best = i;
@@ -102,7 +104,7 @@ std::pair<double, double> max_expected_width(const IntervalTable& t, double p_lo
   const double step = (p_hi - p_lo) / (points - 1);
   const double a = std::max(p_lo, p_lo + (best - 1) * step), b = std::min(p_hi, p_lo + (best + 1) * step);
   const auto r = boost::math::tools::brent_find_minima(
-      [&](double p) { return -expected_width(t, window, p); }, a, b, 40);
+      [&](double p) { return -expected_width(t, model, window, p); }, a, b, 40);
   if (-r.second > best_value) return {-r.second, r.first};
   return {best_value, p_lo + best * step};
 }
@@ -134,11 +136,11 @@ PlanFigures plan_figures(const PlanRequest& q, int n) {
   const IntervalTable t = build_table(*q.method.method, n, q.level, q.side, q.method.label);
   PlanFigures f;
   f.n = n;
-  const InfimumResult inf = coverage_infimum(t, q.p_lo, q.p_hi);
+  const InfimumResult inf = coverage_infimum(t, q.p_lo, q.p_hi, -HUGE_VAL, *q.model);
   f.inf_coverage = inf.value;
   f.inf_coverage_p = inf.where;
-  f.mean_coverage = coverage_uniform_mean(t, q.p_lo, q.p_hi);
-  const auto w = max_expected_width(t, q.p_lo, q.p_hi);
+  f.mean_coverage = coverage_uniform_mean(t, q.p_lo, q.p_hi, *q.model);
+  const auto w = max_expected_width(t, q.p_lo, q.p_hi, *q.model);
   f.max_width = w.first;
   f.max_width_p = w.second;
   f.max_margin = largest_margin(t, q.side);
@@ -199,14 +201,15 @@ bool plan_meets(const PlanRequest& q, int n) {
           if (largest_margin(t, q.side) > value) return false;
           break;
         case Requirement::max_width:
-          if (max_expected_width(t, q.p_lo, hi).first > value) return false;
+          if (max_expected_width(t, q.p_lo, hi, *q.model).first > value) return false;
           break;
         case Requirement::min_coverage:
-          if (!meets_coverage(coverage_infimum(t, q.p_lo, hi, value - coverage_decision_slack).value, value))
+          if (!meets_coverage(
+                  coverage_infimum(t, q.p_lo, hi, value - coverage_decision_slack, *q.model).value, value))
             return false;
           break;
         case Requirement::mean_coverage:
-          if (!meets_coverage(coverage_uniform_mean(t, q.p_lo, hi), value)) return false;
+          if (!meets_coverage(coverage_uniform_mean(t, q.p_lo, hi, *q.model), value)) return false;
           break;
       }
     }

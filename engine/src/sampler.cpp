@@ -2,7 +2,7 @@
 
 namespace covergrid::engine {
 
-void WindowSampler::build(const BinomialWindow& window) {
+void WindowSampler::build(const ProbabilityWindow& window) {
   cum_ = window.cum.data();
   lo_ = window.lo;
   last_ = window.w.size();

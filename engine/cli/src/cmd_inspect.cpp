@@ -129,8 +129,9 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
               throw InputError(
                   path, fmt::format("is damaged: dataset /mc/replicates holds {} at n = {}, p = {}", reps[pi],
                                     n, s.p[pi]));
-            const auto c = engine::paired_difference(s.seed, model, n, pi, s.p[pi],
-                                                     static_cast<std::uint64_t>(reps[pi]), ta, tb);
+            const auto c =
+                engine::paired_difference(s.seed, model, n, pi, s.p[pi], static_cast<std::uint64_t>(reps[pi]),
+                                          ta, tb, *s.models[model].model);
             // The draws are the run's own, so a difference means the stored
             // value was changed after the run: damage or alteration.
             if (c.coverage_a != stored_a[pi])

@@ -23,6 +23,7 @@ enum class Outcome { holds, refuted, inconclusive };
 struct Claim {
   std::string name;  // shown in verdict tables
   methods::MethodInstance method;
+  std::shared_ptr<const SamplingModel> model = binomial_model_ptr();  // the sampling model judged under
   double level = 0.95;
   Side side = Side::two_sided;
   std::vector<int> n;  // strictly increasing, >= 1

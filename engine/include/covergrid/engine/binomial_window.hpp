@@ -10,20 +10,20 @@
 /// s_k = P(k-1)/P(k). Each side stops as soon as that bound is below
 /// tail_bound_per_side, so the neglected mass is below 2 * 2.5e-16 = 5e-16,
 /// inside the 1e-15 the exact sums promise (README, "How the numbers are computed").
-#include <vector>
+#include "covergrid/engine/probability_window.hpp"
 
 namespace covergrid::engine {
 
 inline constexpr double tail_bound_per_side = 2.5e-16;
 
-struct BinomialWindow {
-  int lo = 0;               // first x in the window
-  int hi = -1;              // last x in the window
-  std::vector<double> w;    // w[x - lo] = P(X = x)
-  std::vector<double> cum;  // cum[i] = w[0] + ... + w[i-1]; size w.size() + 1
+/// Fills `out` (and its running sums) for Bin(n, p); reuses the storage. The
+/// binomial model's window (sampling_model.hpp).
+void fill_binomial_window(int n, double p, ProbabilityWindow& out);
 
-  /// Fills the window (and its running sums) for Bin(n, p); reuses the storage.
-  void fill(int n, double p);
+/// A window that fills itself with Bin(n, p): for code and tests that work
+/// with the binomial directly.
+struct BinomialWindow : ProbabilityWindow {
+  void fill(int n, double p) { fill_binomial_window(n, p, *this); }
 };
 
 }  // namespace covergrid::engine

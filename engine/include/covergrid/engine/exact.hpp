@@ -1,8 +1,11 @@
 #pragma once
-/// Exact evaluation for the binomial model: the metrics of every table at one
-/// (n, p) in one pass over the pmf window, the continuous-p infimum of
-/// coverage, and the exact mean coverage over a p-range.
+/// Exact evaluation through a sampling model: the metrics of every table at
+/// one (n, p) in one pass over the model's probability window, the
+/// continuous-p infimum of coverage, the measure of p below a threshold, and
+/// the exact mean coverage over a p-range. The model defaults to the
+/// binomial; nothing here depends on which model it is.
 #include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/sampling_model.hpp"
 #include "covergrid/engine/coverage_rule.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/metrics.hpp"
@@ -15,22 +18,23 @@ namespace covergrid::engine {
 
 using CellMetrics = std::array<double, metric_count>;
 
-/// Every metric of `table` at true proportion p, from the window of Bin(n, p).
+/// Every metric of `table` at true proportion p, from the model's window at (n, p).
 /// Coverage uses the closed interval [L, U]. An unsupported table gives NaN.
 /// For a table whose limits are non-decreasing in x (checked per table, never
 /// assumed) the covered set is the run a..b found by binary search, and
 /// coverage and misses come from the window's running sums; other tables are
 /// scanned x by x (exact_metrics_scan). Width moments are one vectorisable
 /// pass; degenerate and overshoot sum over the few x where they occur.
-CellMetrics exact_metrics(const IntervalTable& table, const BinomialWindow& window, double p);
+CellMetrics exact_metrics(const IntervalTable& table, const ProbabilityWindow& window, double p);
 
 /// The same metrics by the plain scan over every x of the window, whatever
 /// the table's shape; the tests hold exact_metrics to it.
-CellMetrics exact_metrics_scan(const IntervalTable& table, const BinomialWindow& window, double p);
+CellMetrics exact_metrics_scan(const IntervalTable& table, const ProbabilityWindow& window, double p);
 
 /// Exact coverage at p by direct summation over all x = 0..n (no window):
 /// the slow independent path the tests compare against.
-double coverage_by_enumeration(const IntervalTable& table, double p);
+double coverage_by_enumeration(const IntervalTable& table, double p,
+                               const SamplingModel& model = binomial_model());
 
 struct InfimumResult {
   double value = 0;      // inf of coverage over [p_lo, p_hi]
@@ -42,24 +46,29 @@ struct InfimumResult {
 
 /// The exact infimum of coverage over the continuous range [p_lo, p_hi].
 /// Between consecutive interval endpoints the covered set is fixed; for a
-/// contiguous covered run a..b, P(a <= X <= b) is unimodal in p, so the
-/// minimum over a segment lies at its ends, as a one-sided limit. The sweep
-/// keeps the covered set and its run boundaries up to date at each endpoint,
-/// so each segment costs O(log n) plus two CDF evaluations. Where a covered
-/// set is not contiguous, the segment is searched at 33 points instead
+/// contiguous covered run a..b of a model with unimodal runs
+/// (SamplingModel::unimodal_runs; the binomial's are), P(a <= X <= b) is
+/// unimodal in p, so the minimum over a segment lies at its ends, as a
+/// one-sided limit. The sweep keeps the covered set and its run boundaries up
+/// to date at each endpoint, so each segment costs O(log n) plus two CDF
+/// evaluations. Where a covered set is not contiguous, or the model's runs
+/// are not known to be unimodal, the segment is searched at 33 points instead
 /// (flagged as refined). Endpoints closer than 1e-12 (the precision of the
 /// limits) are merged into one event, so rounding gaps do not count as dips.
 /// With `stop_below` set, the sweep stops as soon as a coverage below it is
 /// seen (the result is then a value below it, not the infimum; `stopped`).
 InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi,
-                               double stop_below = -HUGE_VAL);
+                               double stop_below = -HUGE_VAL, const SamplingModel& model = binomial_model());
 
-/// Mean coverage over p uniform on [p_lo, p_hi], exactly: the integral of
-/// P(X = x) over p is a Beta(x+1, n-x+1) probability / (n+1), so
-/// mean = sum_x [I_b(x+1, n-x+1) - I_a(x+1, n-x+1)] / ((n+1)(p_hi - p_lo)) with
-/// [a, b] = [L_x, U_x] intersected with the range. At p_lo == p_hi it is the
-/// coverage there.
-double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi);
+/// Mean coverage over p uniform on [p_lo, p_hi], exactly, from the model's
+/// closed-form mass of each x over a p-range (SamplingModel::uniform_mass;
+/// binomial: the integral of P(X = x) over p is a Beta(x+1, n-x+1)
+/// probability / (n+1), so mean = sum_x [I_b - I_a] / ((n+1)(p_hi - p_lo))
+/// with [a, b] = [L_x, U_x] intersected with the range). At p_lo == p_hi it
+/// is the coverage there. Throws std::logic_error for a model without a
+/// closed form.
+double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi,
+                             const SamplingModel& model = binomial_model());
 
 /// How much of [p_lo, p_hi] has coverage below `threshold`.
 struct BelowMeasure {
@@ -74,14 +83,23 @@ struct BelowMeasure {
 /// a segment whose two ends are at or above the threshold contributes
 /// nothing; otherwise the crossings are found by TOMS 748 (and the segment's
 /// maximum by Brent's method where both ends are below). Tables whose limits
-/// are not monotone are scanned per segment and may be sampled (flagged).
-BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, double p_hi, double threshold);
+/// are not monotone are scanned per segment and may be sampled (flagged), as
+/// is every segment of a model whose runs are not known to be unimodal.
+BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, double p_hi, double threshold,
+                                    const SamplingModel& model = binomial_model());
 
 /// Mean over p uniform on [p_lo, p_hi] of P(U < p) (miss_low) and of
 /// P(L > p) (miss_high), exactly, as for coverage_uniform_mean.
-std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo, double p_hi);
+std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo, double p_hi,
+                                         const SamplingModel& model = binomial_model());
 
-/// Coverage at p of a fixed contiguous run a..b: 1 - P(X < a) - P(X > b).
+/// Binomial coverage at p of a fixed contiguous run a..b: 1 - P(X < a) - P(X > b)
+/// (the binomial model's run_probability).
 double run_probability(int a, int b, int n, double p);
+
+/// The integral of the binomial P(X = x) over p in [a, b], times n + 1:
+/// I_b - I_a for Beta(x+1, n-x+1), taken on the smaller-tail side (the
+/// binomial model's uniform_mass).
+double beta_mass(int x, int n, double a, double b);
 
 }  // namespace covergrid::engine

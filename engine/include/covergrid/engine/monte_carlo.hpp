@@ -6,6 +6,7 @@
 /// differences are paired). The cost is one draw per replicate plus one pass
 /// over the histogram per table, whatever the number of methods.
 #include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/sampling_model.hpp"
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/random.hpp"
 
@@ -40,11 +41,11 @@ struct CellDraws {
 /// error is at most the target or the cap is reached) into `draws`.
 /// The stopping rule uses (k + 1)/(R + 2) for each coverage so that a run of
 /// all-covered replicates does not stop it at a spurious zero error.
-void simulate_cell(const BinomialWindow& window, const CellStream& stream, const ReplicateRule& rule,
+void simulate_cell(const ProbabilityWindow& window, const CellStream& stream, const ReplicateRule& rule,
                    const std::vector<const IntervalTable*>& tables, double p, CellDraws& draws);
 
 /// Every metric of a table from the draws. NaN for an unsupported table.
-McMetrics mc_metrics(const IntervalTable& table, const BinomialWindow& window, const CellDraws& draws,
+McMetrics mc_metrics(const IntervalTable& table, const ProbabilityWindow& window, const CellDraws& draws,
                      double p);
 
 }  // namespace covergrid::engine
@@ -64,6 +65,7 @@ struct PairedCell {
 /// Re-draws the cell (model index, n, p index) of a scenario with `seed` for
 /// `replicates` replicates (exactly the draws the run made) and pairs tables a and b.
 PairedCell paired_difference(std::uint64_t seed, std::size_t model, int n, std::size_t p_index, double p,
-                             std::uint64_t replicates, const IntervalTable& a, const IntervalTable& b);
+                             std::uint64_t replicates, const IntervalTable& a, const IntervalTable& b,
+                             const SamplingModel& sampling = binomial_model());
 
 }  // namespace covergrid::engine

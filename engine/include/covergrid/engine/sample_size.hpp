@@ -32,6 +32,7 @@ const char* requirement_name(Requirement r);
 
 struct PlanRequest {
   methods::MethodInstance method;
+  std::shared_ptr<const SamplingModel> model = binomial_model_ptr();  // the sampling model planned under
   double level = 0.95;
   Side side = Side::two_sided;
   double p_lo = 0, p_hi = 1;
@@ -89,7 +90,8 @@ double margin_of_error(double lower, double upper, int x, int n, Side side);
 
 /// The largest expected width over [p_lo, p_hi]: a 129-point grid, then
 /// Brent's method between the neighbours of the largest grid point.
-std::pair<double, double> max_expected_width(const IntervalTable& table, double p_lo, double p_hi);
+std::pair<double, double> max_expected_width(const IntervalTable& table, double p_lo, double p_hi,
+                                             const SamplingModel& model = binomial_model());
 
 /// All figures at n.
 PlanFigures plan_figures(const PlanRequest& request, int n);

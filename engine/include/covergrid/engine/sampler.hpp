@@ -10,7 +10,7 @@
 /// The window omits at most 5e-16 of the mass (binomial_window.hpp), so the
 /// sampled law differs from Bin(n, p) by at most that much in total
 /// variation: no test with fewer than ~1e30 draws could see it.
-#include "covergrid/engine/binomial_window.hpp"
+#include "covergrid/engine/probability_window.hpp"
 
 #include <vector>
 
@@ -20,7 +20,7 @@ class WindowSampler {
  public:
   /// Builds the guide table for a filled window (kept by reference: the
   /// window must outlive the sampler's use and stay unchanged).
-  void build(const BinomialWindow& window);
+  void build(const ProbabilityWindow& window);
   /// The x for uniform u in [0, 1).
   int draw(double u) const {
     const double target = u * total_;

@@ -1,10 +1,12 @@
 #pragma once
 /// The plain scenario structs the engine consumes. scenarios/ fills them from
 /// TOML; tests and the command line may fill them directly.
+#include "covergrid/engine/sampling_model.hpp"
 #include "covergrid/methods/interval.hpp"
 #include "covergrid/methods/registry.hpp"
 
 #include <cstdint>
+#include <memory>
 #include <string>
 #include <vector>
 
@@ -17,6 +19,7 @@ enum class ModelKind { binomial };
 struct ModelSpec {
   ModelKind kind = ModelKind::binomial;
   std::string label = "binomial";
+  std::shared_ptr<const SamplingModel> model = binomial_model_ptr();  // what the engine evaluates
 };
 
 struct Scenario {

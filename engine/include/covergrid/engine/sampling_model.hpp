@@ -1,0 +1,76 @@
+#pragma once
+/// Sampling models: the law of the success count X in a sample of n at true
+/// proportion p. This is the one seam through which the engine reaches a
+/// model: the exact sums and the Monte Carlo sampler read a model's
+/// probability window, the continuous worst case and the uniform means its
+/// point probabilities, run probabilities and (when it has one) closed-form
+/// mass over a p-range. Adding a model is one file in engine/src/model/, one
+/// line in engine/src/model/registry.cpp, and its tests (DEVELOPERS.md, "How
+/// to add a sampling model").
+#include "covergrid/engine/probability_window.hpp"
+#include "covergrid/methods/interval.hpp"
+
+#include <functional>
+#include <memory>
+#include <optional>
+#include <span>
+#include <string>
+#include <string_view>
+#include <vector>
+
+namespace covergrid::engine {
+
+class SamplingModel {
+ public:
+  virtual ~SamplingModel() = default;
+  SamplingModel() = default;
+  SamplingModel(const SamplingModel&) = delete;
+  SamplingModel& operator=(const SamplingModel&) = delete;
+
+  /// The model's kind in the registry ("binomial").
+  virtual std::string_view kind() const = 0;
+  /// The p the model evaluates for a requested p: p itself, unless the model
+  /// can only attain some proportions (a finite population's K/N).
+  virtual double attainable(int /*n*/, double p) const { return p; }
+  /// P(X = x) over the window of x that carries all but at most
+  /// `out.tail_bound` of the mass (at most 1e-15), with running sums.
+  virtual void window(int n, double p, ProbabilityWindow& out) const = 0;
+  /// P(X = x), computed directly (not through a window).
+  virtual double pmf(int x, int n, double p) const = 0;
+  /// P(a <= X <= b); 0 when a > b.
+  virtual double run_probability(int a, int b, int n, double p) const = 0;
+  /// True when P(a <= X <= b) is unimodal in p for every run a..b: the
+  /// continuous worst case may then take a covered run's minimum at the ends
+  /// of the p-segment on which the run is fixed.
+  virtual bool unimodal_runs() const = 0;
+  /// The integral of P(X = x) over p in [a, b] in closed form, times
+  /// mass_scale(n), when the model has one (uniform means); empty otherwise.
+  /// The scale lets a model keep its masses in the units it computes them in
+  /// without cancellation (binomial: Beta probabilities, scale n + 1).
+  virtual std::optional<double> uniform_mass(int /*x*/, int /*n*/, double /*a*/, double /*b*/) const {
+    return std::nullopt;
+  }
+  virtual double mass_scale(int /*n*/) const { return 1.0; }
+};
+
+/// A registry entry: the kind, what it models, its parameters (validated by
+/// the shared parameter machinery) and a factory taking resolved values.
+struct ModelEntry {
+  std::string kind;
+  std::string description;
+  std::vector<methods::ParamSpec> params;
+  std::function<std::shared_ptr<const SamplingModel>(const methods::ParamValues&)> make;
+};
+
+/// Every model, in catalog order.
+std::span<const ModelEntry> model_registry();
+/// The entry of this kind, or nullptr.
+const ModelEntry* find_model(std::string_view kind);
+/// The binomial model (independent draws from an infinite population), shared.
+const SamplingModel& binomial_model();
+std::shared_ptr<const SamplingModel> binomial_model_ptr();
+
+// Entry points of the model files (one per file; listed in model/registry.cpp).
+ModelEntry binomial_entry();
+
+}  // namespace covergrid::engine
