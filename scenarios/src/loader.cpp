@@ -409,15 +409,20 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       const toml::node* kind = t.get("kind");
       if (!kind) ctx.fail(&item, "[[model]] needs 'kind'");
       const std::string k = string_of(ctx, *kind, "[[model]] kind");
-      engine::ModelSpec spec;
-      if (k == "binomial")
-        spec.kind = engine::ModelKind::binomial;
-      else if (k == "hypergeometric" || k == "beta-binomial")
+      // Kinds come from the engine's model registry (one line per model).
+      std::string known;
+      for (const auto& entry : engine::model_registry())
+        known += fmt::format("{}\"{}\"", known.empty() ? "" : ", ", entry.kind);
+      const engine::ModelEntry* entry = engine::find_model(k);
+      if (!entry && (k == "hypergeometric" || k == "beta-binomial"))
         ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not available in this version yet "
-                                   "(available: \"binomial\")",
-                                   k));
-      else
-        ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: \"binomial\")", k));
+                                   "(available: {})",
+                                   k, known));
+      if (!entry)
+        ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: {})", k, known));
+      engine::ModelSpec spec;
+      spec.kind = engine::ModelKind::binomial;
+      spec.model = entry->make({});
       spec.label = k;
       if (const auto* l = t.get("label")) {
         spec.label = string_of(ctx, *l, "[[model]] label");

@@ -181,3 +181,31 @@ TEST_CASE("every malformed scenario names its line and key", "[scenarios][bad-in
   }
   CHECK(count >= 15);
 }
+
+TEST_CASE("[[model]] kinds are read through the engine's model registry", "[scenarios][model]") {
+  const auto s = covergrid::test::scenario_from(R"(
+[grid]
+n = [10]
+p = [0.5]
+levels = [0.95]
+[[method]]
+id = "wilson"
+[[model]]
+kind = "binomial"
+[[model]]
+kind = "binomial"
+label = "with replacement"
+)");
+  REQUIRE(s.models.size() == 2);
+  CHECK(s.models[0].label == "binomial");
+  CHECK(s.models[1].label == "with replacement");
+  for (const auto& m : s.models) {
+    REQUIRE(m.model != nullptr);
+    CHECK(m.model->kind() == "binomial");
+  }
+  // Without [[model]], one binomial model.
+  const auto plain = covergrid::test::scenario_from(
+      "[grid]\nn = [10]\np = [0.5]\nlevels = [0.95]\n[[method]]\nid = \"wilson\"\n");
+  REQUIRE(plain.models.size() == 1);
+  CHECK(plain.models[0].model->kind() == "binomial");
+}
