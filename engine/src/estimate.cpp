@@ -118,6 +118,14 @@ double WorkEstimate::cost(int n) const {
   return seconds_at_ref * std::pow(static_cast<double>(n) / static_cast<double>(ref_n), exponent);
 }
 
+void WorkEstimate::add(const WorkEstimate& other) {
+  seconds += other.seconds;
+  calibration_seconds += other.calibration_seconds;
+  probes += other.probes;
+  largest_probe = std::max(largest_probe, other.largest_probe);
+  threads = other.threads;
+}
+
 WorkEstimate estimate_per_n(std::span<const int> ns, int threads, const std::function<void(int)>& step,
                             double extra_seconds, const Clock& clock) {
   // Probe budget and the share of the estimate the probes may take (as in

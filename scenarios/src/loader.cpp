@@ -421,7 +421,6 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       if (!entry)
         ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: {})", k, known));
       engine::ModelSpec spec;
-      spec.kind = engine::ModelKind::binomial;
       spec.model = entry->make({});
       spec.label = k;
       if (const auto* l = t.get("label")) {

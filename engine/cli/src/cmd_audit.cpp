@@ -108,12 +108,7 @@ int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out, std::o
   std::size_t n_total = 0;
   for (const auto& c : claims) {
     estimates.push_back(engine::estimate_audit(c, a.threads));
-    const auto& e = estimates.back();
-    total.seconds += e.seconds;
-    total.calibration_seconds += e.calibration_seconds;
-    total.probes += e.probes;
-    total.largest_probe = std::max(total.largest_probe, e.largest_probe);
-    total.threads = e.threads;
+    total.add(estimates.back());
     n_total += c.n.size();
   }
   check_large_work("audit", total, a.yes, "narrow the claims' n ranges (or their replicates)");

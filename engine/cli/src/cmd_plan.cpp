@@ -132,13 +132,7 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
   // every method (the search usually decides far fewer). A large one needs
   // --yes.
   engine::WorkEstimate total;
-  for (const auto& q : requests) {
-    const engine::WorkEstimate e = engine::estimate_plan(q, a.threads);
-    total.seconds += e.seconds;
-    total.probes += e.probes;
-    total.largest_probe = std::max(total.largest_probe, e.largest_probe);
-    total.threads = e.threads;
-  }
+  for (const auto& q : requests) total.add(engine::estimate_plan(q, a.threads));
   check_large_work("plan", total, a.yes, "narrow the --n search range");
   if (!a.quiet && (isatty(STDERR_FILENO) != 0 || total.seconds >= show_estimate_seconds))
     err << fmt::format("covergrid: plan over n {}..{}, {} method{}: at most {}\n", base.n_from, base.n_to,

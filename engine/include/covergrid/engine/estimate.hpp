@@ -57,6 +57,10 @@ struct WorkEstimate {
 
   /// One n's fitted cost on one thread, in seconds.
   double cost(int n) const;
+  /// Adds another job's estimate (several claims or methods run one after
+  /// the other): seconds and probes add up, the largest probe is kept; the
+  /// fit stays this one's.
+  void add(const WorkEstimate& other);
   bool large() const { return seconds > large_run_seconds; }
 };
 

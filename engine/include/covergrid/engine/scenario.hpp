@@ -14,10 +14,7 @@ namespace covergrid::engine {
 
 using methods::Side;
 
-enum class ModelKind { binomial };
-
 struct ModelSpec {
-  ModelKind kind = ModelKind::binomial;
   std::string label = "binomial";
   std::shared_ptr<const SamplingModel> model = binomial_model_ptr();  // what the engine evaluates
 };
