@@ -85,7 +85,8 @@ struct ExactRow {
 /// One n of an exact claim: everything the verdict reads.
 ExactRow exact_row(const Claim& c, int n) {
   const double t = c.threshold() - coverage_decision_slack;
-  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
+  const IntervalTable table =
+      build_table(*c.method.method, n, c.level, c.side, c.method.label, c.model->design());
   ExactRow r;
   if (c.kind == ClaimKind::minimum) {
     r.inf = coverage_infimum(table, c.p_lo, c.p_hi, -HUGE_VAL, *c.model);
@@ -127,7 +128,8 @@ Verdict audit_exact(const Claim& c, int threads, const AuditProgressFn& progress
     v.worst_p = w.where;
     v.worst_from = w.from;
     v.worst_coverage = w.value;
-    const IntervalTable table = build_table(*c.method.method, v.worst_n, c.level, c.side, c.method.label);
+    const IntervalTable table =
+        build_table(*c.method.method, v.worst_n, c.level, c.side, c.method.label, c.model->design());
     const auto m = metrics_beside(table, *c.model, w.where, w.from, c.p_lo, c.p_hi);
     v.worst_miss_low = m[1];
     v.worst_miss_high = m[2];
@@ -170,15 +172,17 @@ std::vector<double> sim_points(const Claim& c) {
 /// out[0 .. ps.size()).
 void simulate_row(const Claim& c, int n, const std::vector<double>& ps, std::uint64_t replicates,
                   SimCell* out) {
-  const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
+  const IntervalTable table =
+      build_table(*c.method.method, n, c.level, c.side, c.method.label, c.model->design());
   const std::vector<const IntervalTable*> tables = {&table};
   ProbabilityWindow window;
   CellDraws draws;
   for (std::size_t j = 0; j < ps.size(); ++j) {
-    c.model->window(n, ps[j], window);
+    const double p = c.model->attainable(ps[j]);  // a finite population's K/N
+    c.model->window(n, p, window);
     const CellStream stream(c.seed, 0, static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(j));
-    simulate_cell(window, stream, ReplicateRule{replicates, 0, 0}, tables, ps[j], draws);
-    const McMetrics m = mc_metrics(table, window, draws, ps[j]);
+    simulate_cell(window, stream, ReplicateRule{replicates, 0, 0}, tables, p, draws);
+    const McMetrics m = mc_metrics(table, window, draws, p);
     SimCell& cell = out[j];
     cell.coverage = m[index(Metric::coverage)];
     cell.miss_low = m[index(Metric::miss_low)];
@@ -369,7 +373,8 @@ WorkEstimate estimate_audit(const Claim& c, int threads) {
     const std::vector<double> mid = {ps[ps.size() / 2]};
     ProbabilityWindow window;
     c.model->window(n, mid[0], window);
-    const IntervalTable table = build_table(*c.method.method, n, c.level, c.side, c.method.label);
+    const IntervalTable table =
+        build_table(*c.method.method, n, c.level, c.side, c.method.label, c.model->design());
     const std::vector<const IntervalTable*> tables = {&table};
     CellDraws draws;
     std::uint64_t drawn = 0;

@@ -5,6 +5,8 @@
 #include <boost/math/tools/minima.hpp>
 
 #include <algorithm>
+#include <array>
+#include <cstdint>
 #include <cmath>
 #include <limits>
 #include <set>
@@ -91,6 +93,7 @@ CellMetrics exact_metrics(const IntervalTable& table, const ProbabilityWindow& w
 
 double coverage_by_enumeration(const IntervalTable& table, double p, const SamplingModel& model) {
   if (!table.supported) return nan;
+  p = model.attainable(p);
   double cov = 0;
   for (int x = 0; x <= table.n; ++x) {
     const std::size_t i = static_cast<std::size_t>(x);
@@ -148,10 +151,118 @@ double set_probability(const CoveredSet& s, double p, const SamplingModel& model
 
 }  // namespace
 
+namespace {
+
+// Models whose true proportion takes only the values k/L (a finite
+// population, SamplingModel::lattice() = L). Over a p-range the worst case is
+// a minimum over those points, the uniform mean their average, and the
+// measure below a threshold the range's length times the share of points
+// below it. Each point's coverage is summed over its probability window.
+
+/// The lattice indices k with p_lo <= k/L <= p_hi (empty when first > last).
+struct LatticeRange {
+  std::int64_t first, last;
+  std::int64_t count() const { return last >= first ? last - first + 1 : 0; }
+};
+
+LatticeRange lattice_range(double lattice, double p_lo, double p_hi) {
+  const auto at = [&](std::int64_t k) { return static_cast<double>(k) / lattice; };
+  const auto top = static_cast<std::int64_t>(lattice);
+  auto first = std::clamp<std::int64_t>(static_cast<std::int64_t>(std::ceil(p_lo * lattice)), 0, top);
+  while (first > 0 && at(first - 1) >= p_lo) --first;
+  while (first <= top && at(first) < p_lo) ++first;
+  auto last = std::clamp<std::int64_t>(static_cast<std::int64_t>(std::floor(p_hi * lattice)), 0, top);
+  while (last < top && at(last + 1) <= p_hi) ++last;
+  while (last >= 0 && at(last) > p_hi) --last;
+  return {first, last};
+}
+
+/// P(covered), P(U < p) and P(L > p) at the lattice point p, over its window.
+std::array<double, 3> lattice_point(const IntervalTable& table, double p, const SamplingModel& model,
+                                    ProbabilityWindow& window) {
+  model.window(table.n, p, window);
+  double cov = 0, low = 0, high = 0;
+  for (int x = window.lo; x <= window.hi; ++x) {
+    const std::size_t i = static_cast<std::size_t>(x);
+    const double w = window.w[static_cast<std::size_t>(x - window.lo)];
+    if (table.upper[i] < p)
+      low += w;
+    else if (table.lower[i] > p)
+      high += w;
+    else
+      cov += w;
+  }
+  return {cov, low, high};
+}
+
+/// Every point of a range whose count is at most this is evaluated; beyond
+/// it a regular subsample of this many (flagged as refined / approximate).
+constexpr std::int64_t lattice_point_limit = 1000000;
+
+InfimumResult lattice_infimum(const IntervalTable& table, double p_lo, double p_hi, double stop_below,
+                              const SamplingModel& model) {
+  const double lattice = model.lattice();
+  const LatticeRange range = lattice_range(lattice, p_lo, p_hi);
+  InfimumResult best{std::numeric_limits<double>::infinity(), nan, 0, false, false};
+  if (range.count() == 0) return {nan, nan, 0, false, false};
+  // A monotone table's covered set is a run at every p, and the model's runs
+  // are unimodal over the points: only the first and last point between two
+  // consecutive endpoints (and points on an endpoint) can be the minimum.
+  std::vector<std::int64_t> points;
+  if (table.monotone && model.unimodal_runs()) {
+    points = {range.first, range.last};
+    for (const auto* limits : {&table.lower, &table.upper})
+      for (double e : *limits) {
+        if (e < p_lo || e > p_hi) continue;
+        const auto f = static_cast<std::int64_t>(std::floor(e * lattice));
+        for (std::int64_t k = f - 1; k <= f + 2; ++k)
+          if (k >= range.first && k <= range.last) points.push_back(k);
+      }
+    std::sort(points.begin(), points.end());
+    points.erase(std::unique(points.begin(), points.end()), points.end());
+  } else {
+    const std::int64_t stride = (range.count() + lattice_point_limit - 1) / lattice_point_limit;
+    best.refined = stride > 1;
+    for (std::int64_t k = range.first; k <= range.last; k += stride) points.push_back(k);
+    if (points.back() != range.last) points.push_back(range.last);
+  }
+  ProbabilityWindow window;
+  for (std::int64_t k : points) {
+    const double p = static_cast<double>(k) / lattice;
+    const double value = lattice_point(table, p, model, window)[0];
+    if (value < best.value) {
+      best.value = value;
+      best.where = p;
+      best.from = 0;
+      best.stopped = value < stop_below;
+      if (best.stopped) break;
+    }
+  }
+  return best;
+}
+
+/// Means over the points of [p_lo, p_hi]: coverage, miss low, miss high.
+std::array<double, 3> lattice_means(const IntervalTable& table, double p_lo, double p_hi,
+                                    const SamplingModel& model) {
+  const LatticeRange range = lattice_range(model.lattice(), p_lo, p_hi);
+  if (range.count() == 0) return {nan, nan, nan};
+  ProbabilityWindow window;
+  std::array<double, 3> sum{0, 0, 0};
+  for (std::int64_t k = range.first; k <= range.last; ++k) {
+    const auto v = lattice_point(table, static_cast<double>(k) / model.lattice(), model, window);
+    for (std::size_t i = 0; i < 3; ++i) sum[i] += v[i];
+  }
+  for (double& v : sum) v /= static_cast<double>(range.count());
+  return sum;
+}
+
+}  // namespace
+
 InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi, double stop_below,
                                const SamplingModel& model) {
   InfimumResult best;
   if (!table.supported) return {nan, nan, 0, false};
+  if (model.lattice() > 0) return lattice_infimum(table, p_lo, p_hi, stop_below, model);
   const int n = table.n;
   // Endpoints strictly inside the range, each with what happens there.
   struct Event {
@@ -276,6 +387,7 @@ double uniform_mass_of(const SamplingModel& model, int x, int n, double a, doubl
 double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_hi,
                              const SamplingModel& model) {
   if (!table.supported) return nan;
+  if (model.lattice() > 0) return lattice_means(table, p_lo, p_hi, model)[0];
   const int n = table.n;
   if (p_hi <= p_lo) return coverage_by_enumeration(table, p_lo, model);
   double sum = 0;
@@ -289,6 +401,10 @@ double coverage_uniform_mean(const IntervalTable& table, double p_lo, double p_h
 std::array<double, 2> miss_uniform_means(const IntervalTable& table, double p_lo, double p_hi,
                                          const SamplingModel& model) {
   if (!table.supported) return {nan, nan};
+  if (model.lattice() > 0) {
+    const auto means = lattice_means(table, p_lo, p_hi, model);
+    return {means[1], means[2]};
+  }
   const int n = table.n;
   if (p_hi <= p_lo) {
     double low = 0, high = 0;
@@ -339,6 +455,18 @@ BelowMeasure coverage_measure_below(const IntervalTable& table, double p_lo, dou
   const int n = table.n;
   if (p_hi <= p_lo) {
     out.measure = 0;  // a single point has measure zero
+    return out;
+  }
+  if (model.lattice() > 0) {
+    // The range's length times the share of its points below the threshold.
+    const LatticeRange range = lattice_range(model.lattice(), p_lo, p_hi);
+    if (range.count() == 0) return out;
+    ProbabilityWindow window;
+    std::int64_t below = 0;
+    for (std::int64_t k = range.first; k <= range.last; ++k)
+      if (lattice_point(table, static_cast<double>(k) / model.lattice(), model, window)[0] < threshold)
+        ++below;
+    out.measure = (p_hi - p_lo) * static_cast<double>(below) / static_cast<double>(range.count());
     return out;
   }
   std::vector<double> cuts;

@@ -67,13 +67,17 @@ IntervalTable build(const methods::IntervalMethod& method, int n, double level, 
 }  // namespace
 
 IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side,
-                          std::string_view label) {
-  return build(method, n, level, side, false, label);
+                          std::string_view label, const methods::Design& design) {
+  const auto bound = method.for_design(design);
+  return build(bound ? *bound : method, n, level, side, false, label);
 }
 
 IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n, double level,
-                                   methods::Side side, std::string_view label) {
-  return build(method, n, level, side, side == methods::Side::two_sided && method.symmetric(), label);
+                                   methods::Side side, std::string_view label,
+                                   const methods::Design& design) {
+  const auto bound = method.for_design(design);
+  const methods::IntervalMethod& m = bound ? *bound : method;
+  return build(m, n, level, side, side == methods::Side::two_sided && m.symmetric(), label);
 }
 
 }  // namespace covergrid::engine

@@ -47,18 +47,20 @@ std::vector<Combo> combos_of(const Scenario& s) {
   return out;
 }
 
-IntervalTable table_for(const Combo& c, int n) {
-  return build_table(*c.method, n, c.level, c.side, *c.label);
+/// The combo's table at n under `model`: design-aware methods (finite
+/// population corrections) are bound to the model's design first.
+IntervalTable table_for(const Combo& c, int n, const SamplingModel& model) {
+  return build_table(*c.method, n, c.level, c.side, *c.label, model.design());
 }
 
 /// Every combo's table at n, in parallel. Isolated, so that the waiting
 /// thread never picks up another chunk (which might wait on the same row's
 /// once_flag) while it waits for the loop.
-RowTables build_row(const std::vector<Combo>& combos, int n) {
+RowTables build_row(const std::vector<Combo>& combos, int n, const SamplingModel& model) {
   RowTables tables(combos.size());
   tbb::this_task_arena::isolate([&] {
     tbb::parallel_for(std::size_t{0}, combos.size(),
-                      [&](std::size_t c) { tables[c] = table_for(combos[c], n); });
+                      [&](std::size_t c) { tables[c] = table_for(combos[c], n, model); });
   });
   return tables;
 }
@@ -90,7 +92,8 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
     for (std::size_t c = 0; c < combos; ++c) row_tables[c] = &(*tables[i])[c];
     for (std::size_t j = 0; j < chunk.p_count; ++j) {
       const std::size_t p_index = chunk.p_begin + j;
-      const double p = scenario.p[p_index];
+      // The p the model attains (a finite population's K/N); the grid's own p otherwise.
+      const double p = model.attainable(scenario.p[p_index]);
       model.window(n, p, window);
       if (r.has_exact)
         for (std::size_t c = 0; c < combos; ++c) {
@@ -111,6 +114,12 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
       }
     }
   }
+  // The grid's p as the model attains them (the grid itself for models that
+  // attain every p).
+  std::vector<double> snapped;
+  if (model.lattice() > 0)
+    for (double p : scenario.p) snapped.push_back(model.attainable(p));
+  const std::vector<double>& attained_p = model.lattice() > 0 ? snapped : scenario.p;
   if (chunk.p_begin == 0 && chunk.p_count == scenario.p.size()) {
     const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
     auto fill = [&](const std::array<std::vector<double>, metric_count>* ex,
@@ -125,7 +134,7 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
           const auto& wid = ex ? (*ex)[index(Metric::width)] : (*mc)[index(Metric::width)];
           const auto& mlo = ex ? (*ex)[index(Metric::miss_low)] : (*mc)[index(Metric::miss_low)];
           const auto& mhi = ex ? (*ex)[index(Metric::miss_high)] : (*mc)[index(Metric::miss_high)];
-          grid_stats(&cov[at], &wid[at], &mlo[at], &mhi[at], scenario.p,
+          grid_stats(&cov[at], &wid[at], &mlo[at], &mhi[at], attained_p,
                      scenario.levels[(c / methods) % levels], row);
           for (std::size_t k = 0; k < grid_stat_count; ++k) out[k][c * chunk.n_count + i] = row[k];
         }
@@ -142,9 +151,9 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
   if (scenario.exact && chunk.p_begin == 0) {
     r.has_row_stats = true;
     for (auto& v : r.row_stats) v.assign(combos * chunk.n_count, nan);
-    const double p_lo = scenario.p.front(), p_hi = scenario.p.back();
     for (std::size_t c = 0; c < combos; ++c)
       for (std::size_t i = 0; i < chunk.n_count; ++i) {
+        const double p_lo = model.attainable(scenario.p.front()), p_hi = model.attainable(scenario.p.back());
         const IntervalTable& t = (*tables[i])[c];
         const std::size_t at = c * chunk.n_count + i;
         const InfimumResult inf = coverage_infimum(t, p_lo, p_hi, -HUGE_VAL, model);
@@ -187,7 +196,8 @@ ChunkResult compute_chunk(const Scenario& scenario, const ChunkSpec& chunk) {
   std::vector<RowTables> rows(chunk.n_count);
   std::vector<const RowTables*> ptrs;
   for (std::size_t i = 0; i < chunk.n_count; ++i) {
-    for (const auto& c : combos) rows[i].push_back(table_for(c, scenario.n[chunk.n_begin + i]));
+    for (const auto& c : combos)
+      rows[i].push_back(table_for(c, scenario.n[chunk.n_begin + i], *scenario.models[chunk.model].model));
     ptrs.push_back(&rows[i]);
   }
   return compute_with_tables(scenario, chunk, ptrs);
@@ -245,6 +255,7 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink, Sou
   std::vector<GridAccumulator> acc;
   for (std::size_t model = 0; model < scenario.models.size(); ++model)
     for (std::size_t nb = 0; nb < scenario.n.size(); nb += plan.n_block) {
+      const SamplingModel& sampling = *scenario.models[model].model;
       const std::size_t count = std::min(plan.n_block, scenario.n.size() - nb);
       acc.assign(combos * count, GridAccumulator{});
       for (std::size_t pb = 0; pb < points; pb += plan.p_block) {
@@ -258,7 +269,8 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink, Sou
           for (std::size_t i = 0; i < count; ++i)
             for (std::size_t j = 0; j < width; ++j) {
               const std::size_t at = (c * count + i) * width + j;
-              acc[c * count + i].add(cov[at], wid[at], mlo[at], mhi[at], scenario.p[pb + j], nominal);
+              acc[c * count + i].add(cov[at], wid[at], mlo[at], mhi[at],
+                                     sampling.attainable(scenario.p[pb + j]), nominal);
             }
         }
       }
@@ -295,7 +307,9 @@ class RowCache {
       if (!slot) slot = std::make_shared<Entry>();
       entry = slot;
     }
-    std::call_once(entry->once, [&] { entry->tables = build_row(combos_, scenario_.n[n_index]); });
+    std::call_once(entry->once, [&] {
+      entry->tables = build_row(combos_, scenario_.n[n_index], *scenario_.models[model].model);
+    });
     return &entry->tables;
   }
 
@@ -337,7 +351,9 @@ class SharedRowCache {
       if (slot->users++ == 0) idle_.remove({model, n_index});
       entry = slot;
     }
-    std::call_once(entry->once, [&] { entry->tables = build_row(combos_, scenario_.n[n_index]); });
+    std::call_once(entry->once, [&] {
+      entry->tables = build_row(combos_, scenario_.n[n_index], *scenario_.models[model].model);
+    });
     return &entry->tables;
   }
 

@@ -133,7 +133,8 @@ double closed_form_max_margin(const PlanRequest& q, int n) {
 }
 
 PlanFigures plan_figures(const PlanRequest& q, int n) {
-  const IntervalTable t = build_table(*q.method.method, n, q.level, q.side, q.method.label);
+  const IntervalTable t =
+      build_table(*q.method.method, n, q.level, q.side, q.method.label, q.model->design());
   PlanFigures f;
   f.n = n;
   const InfimumResult inf = coverage_infimum(t, q.p_lo, q.p_hi, -HUGE_VAL, *q.model);
@@ -184,7 +185,8 @@ bool plan_meets(const PlanRequest& q, int n) {
   // symmetric about 1/2, coverage and expected width symmetric in p, so half
   // the range decides (its mean equals the whole range's mean). The
   // registry's invariant tests hold every method that declares symmetry to it.
-  const IntervalTable t = build_table_mirrored(*q.method.method, n, q.level, q.side, q.method.label);
+  const IntervalTable t =
+      build_table_mirrored(*q.method.method, n, q.level, q.side, q.method.label, q.model->design());
   if (precision && zero_widths(t).first >= 0) return false;
   const bool halve = q.side == Side::two_sided && q.method.method->symmetric() &&
                      std::fabs(q.p_lo + q.p_hi - 1.0) <= 1e-12 && q.p_lo < 0.5;

@@ -41,6 +41,12 @@ std::string_view family_name(Family family) {
   return "?";
 }
 
+std::shared_ptr<const IntervalMethod> under_design(const std::shared_ptr<const IntervalMethod>& method,
+                                                   const Design& design) {
+  auto bound = method->for_design(design);
+  return bound ? bound : method;
+}
+
 Limits interval(const IntervalMethod& method, int x, int n, double level, Side side) {
   const double alpha = 1.0 - level;
   RawLimits raw{0.0, 1.0};

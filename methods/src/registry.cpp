@@ -11,10 +11,23 @@ namespace covergrid::methods {
 
 std::span<const MethodEntry> registry() {
   static const std::vector<MethodEntry> entries = {
-      wald_entry(),      wald_cc_entry(),       wald_half_entry(),        wilson_entry(),
-      wilson_cc_entry(), agresti_coull_entry(), clopper_pearson_entry(),  mid_p_entry(),
-      jeffreys_entry(),  bayes_hpd_entry(),     likelihood_ratio_entry(), arcsine_entry(),
-      logit_entry(),     blaker_entry(),
+      wald_entry(),
+      wald_cc_entry(),
+      wald_half_entry(),
+      wilson_entry(),
+      wilson_cc_entry(),
+      agresti_coull_entry(),
+      clopper_pearson_entry(),
+      mid_p_entry(),
+      jeffreys_entry(),
+      bayes_hpd_entry(),
+      likelihood_ratio_entry(),
+      arcsine_entry(),
+      logit_entry(),
+      blaker_entry(),
+      fpc_wald_entry(),
+      fpc_wilson_entry(),
+      exact_hypergeometric_entry(),
   };
   return entries;
 }
@@ -32,38 +45,39 @@ std::string param_text(const ParamValue& value) {
 }
 
 ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given) {
+  return resolve_param_list(fmt::format("method '{}'", entry.info.id), entry.info.params, given);
+}
+
+ParamValues resolve_param_list(std::string_view owner, std::span<const ParamSpec> specs,
+                               const ParamValues& given) {
   ParamValues out;
   for (const auto& [key, value] : given) {
     // Captured by name: clang 14 (the fuzz build) cannot capture a structured binding.
     const std::string& name = key;
-    const auto spec = std::find_if(entry.info.params.begin(), entry.info.params.end(),
-                                   [&](const ParamSpec& s) { return s.name == name; });
-    if (spec == entry.info.params.end()) {
+    const auto spec =
+        std::find_if(specs.begin(), specs.end(), [&](const ParamSpec& s) { return s.name == name; });
+    if (spec == specs.end()) {
       std::string known;
-      for (const auto& s : entry.info.params) known += (known.empty() ? "" : ", ") + s.name;
+      for (const auto& s : specs) known += (known.empty() ? "" : ", ") + s.name;
       throw ParameterError(
-          key, fmt::format("method '{}' takes no parameter '{}'{}", entry.info.id, key,
+          key, fmt::format("{} takes no parameter '{}'{}", owner, key,
                            known.empty() ? std::string(" (it takes none)") : " (it takes: " + known + ")"));
     }
     switch (spec->kind) {
       case ParamSpec::Kind::boolean:
         if (!std::holds_alternative<bool>(value))
-          throw ParameterError(
-              key, fmt::format("parameter '{}' of method '{}' must be true or false", key, entry.info.id));
+          throw ParameterError(key, fmt::format("parameter '{}' of {} must be true or false", key, owner));
         break;
       case ParamSpec::Kind::number: {
         const double* d = std::get_if<double>(&value);
-        if (!d)
-          throw ParameterError(
-              key, fmt::format("parameter '{}' of method '{}' must be a number", key, entry.info.id));
+        if (!d) throw ParameterError(key, fmt::format("parameter '{}' of {} must be a number", key, owner));
         if (!std::isfinite(*d) || (spec->min_closed ? *d < spec->min : *d <= spec->min) ||
             (spec->max > 0 && *d > spec->max))
           throw ParameterError(
-              key, spec->max > 0
-                       ? fmt::format("parameter '{}' of method '{}' = {} is outside {}{:g}, {:g}]", key,
-                                     entry.info.id, *d, spec->min_closed ? "[" : "(", spec->min, spec->max)
-                       : fmt::format("parameter '{}' of method '{}' = {} must be greater than {}", key,
-                                     entry.info.id, *d, spec->min));
+              key, spec->max > 0 ? fmt::format("parameter '{}' of {} = {} is outside {}{:g}, {:g}]", key,
+                                               owner, *d, spec->min_closed ? "[" : "(", spec->min, spec->max)
+                                 : fmt::format("parameter '{}' of {} = {} must be greater than {}", key,
+                                               owner, *d, spec->min));
         break;
       }
       case ParamSpec::Kind::choice: {
@@ -71,15 +85,14 @@ ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given) {
         if (!s || std::find(spec->choices.begin(), spec->choices.end(), *s) == spec->choices.end()) {
           std::string list;
           for (const auto& c : spec->choices) list += (list.empty() ? "\"" : ", \"") + c + "\"";
-          throw ParameterError(
-              key, fmt::format("parameter '{}' of method '{}' must be one of {}", key, entry.info.id, list));
+          throw ParameterError(key, fmt::format("parameter '{}' of {} must be one of {}", key, owner, list));
         }
         break;
       }
     }
     out[key] = value;
   }
-  for (const auto& spec : entry.info.params)
+  for (const auto& spec : specs)
     if (!out.contains(spec.name)) out[spec.name] = spec.default_value;
   return out;
 }

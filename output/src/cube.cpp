@@ -45,6 +45,21 @@ std::string utc_now() {
 }
 
 /// Whether `name` ("/group/dataset") is a dataset of the cube layout.
+/// The names of an object's attributes.
+std::vector<std::string> attribute_names(hid_t object) {
+  H5O_info_t oinfo;
+  check(H5Oget_info2(object, &oinfo, H5O_INFO_NUM_ATTRS), "read attributes");
+  std::vector<std::string> out;
+  for (hsize_t i = 0; i < oinfo.num_attrs; ++i) {
+    char name[256];
+    const ssize_t len =
+        H5Aget_name_by_idx(object, ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT);
+    if (len < 0) throw CubeError("cannot read an attribute name");
+    out.emplace_back(name);
+  }
+  return out;
+}
+
 bool known_dataset(const std::string& name) {
   static const std::set<std::string> known = [] {
     std::set<std::string> k;
@@ -825,6 +840,30 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
     for (const auto& [k, v] : m.params) set_attr(g.get(), "param." + k, methods::param_text(v));
   }
 
+  // One group per sampling model, in axis order: its kind, description and
+  // parameters, and for a model that snaps p (a finite population's K/N) the
+  // grid's p as the model attains them.
+  Handle models_group = create_group(root, "models");
+  for (std::size_t i = 0; i < s.models.size(); ++i) {
+    const engine::ModelSpec& m = s.models[i];
+    Handle g = create_group(models_group.get(), m.label);
+    set_attr(g.get(), "index", static_cast<std::int64_t>(i));
+    set_attr(g.get(), "kind", std::string(m.model->kind()));
+    if (const auto* entry = engine::find_model(m.model->kind()))
+      set_attr(g.get(), "description", entry->description);
+    for (const auto& [k, v] : m.params) set_attr(g.get(), "param." + k, methods::param_text(v));
+    if (m.model->lattice() > 0) {
+      std::vector<double> attained;
+      for (double p : s.p) attained.push_back(m.model->attainable(p));
+      Handle d = write_vector(g.get(), "p_attained", attained);
+      set_attr(
+          d.get(), "long_name",
+          std::string(
+              "the true proportion each grid p is evaluated at (snapped to the model's attainable values)"));
+      set_attr(d.get(), "units", std::string("1"));
+    }
+  }
+
   const std::size_t S = s.sides.size(), L = s.levels.size(), M = s.methods.size();
   const std::vector<hsize_t> dims = {s.models.size(), S, L, M, s.n.size(), s.p.size()};
   const std::vector<hsize_t> chunk = {1, 1, 1, 1, plan_.n_block, plan_.p_block};
@@ -1106,8 +1145,12 @@ void CubeReader::validate() {
 
   // Every dataset is one the layout knows: one it does not (declared with
   // 2^40 elements, or 10^12 chunks) is refused, never read.
+  std::vector<std::string> attained_datasets;  // /models/<label>/p_attained, checked below
   for (const auto& name : dataset_paths(root))
-    if (!known_dataset(name))
+    if (name.starts_with("/models/") && name.ends_with("/p_attained") &&
+        name.find('/', 8) == name.size() - 11)
+      attained_datasets.push_back(name);
+    else if (!known_dataset(name))
       bad(fmt::format("dataset {} is not part of a covergrid cube (format {})", name, cube_format_version));
 
   // The axes, from /summary (always there): their lengths bounded by what a
@@ -1134,6 +1177,13 @@ void CubeReader::validate() {
     bad(fmt::format("its axes declare {} (side, level, method) combinations; a cube has at most {}",
                     length[1] * length[2] * length[3], engine::max_combinations));
   models = read_strings(root, "/summary/model");
+  for (const auto& name : attained_datasets) {
+    if (std::find(models.begin(), models.end(), name.substr(8, name.size() - 19)) == models.end())
+      bad(fmt::format("dataset {} belongs to no model of the cube's model axis", name));
+    const auto dims = dataset_shape(name, Kind::f64);
+    if (dims.size() != 1 || dims[0] != length[5])
+      bad(fmt::format("dataset {} does not hold one value per p of the grid", name));
+  }
   sides = read_strings(root, "/summary/side");
   levels = read_doubles(root, "/summary/level");
   methods = read_strings(root, "/summary/method");
@@ -1198,16 +1248,18 @@ void CubeReader::validate() {
     if (!exists(root, "methods/" + label)) bad(fmt::format("group /methods/{} is missing", label));
     Handle g = open_group(root, "/methods/" + label);
     auto& info = method_info[label];
-    H5O_info_t oinfo;
-    check(H5Oget_info2(g.get(), &oinfo, H5O_INFO_NUM_ATTRS), "read method attributes");
-    for (hsize_t i = 0; i < oinfo.num_attrs; ++i) {
-      char name[256];
-      const ssize_t len =
-          H5Aget_name_by_idx(g.get(), ".", H5_INDEX_NAME, H5_ITER_INC, i, name, sizeof name, H5P_DEFAULT);
-      if (len < 0) throw CubeError("cannot read a method attribute name");
-      info[name] = get_attr_string(g.get(), name);
-    }
+    for (const auto& name : attribute_names(g.get())) info[name] = get_attr_string(g.get(), name);
     if (!info.count("id")) bad(fmt::format("group /methods/{} has no attribute id", label));
+  }
+  // Sampling models: /models/<label> (absent in cubes written before it; those
+  // hold binomial models only). Their text attributes: kind, param.*.
+  for (const auto& label : models) {
+    if (!exists(root, "models") || !exists(root, "models/" + label)) continue;
+    Handle g = open_group(root, "/models/" + label);
+    auto& info = model_info[label];
+    for (const auto& name : attribute_names(g.get()))
+      if (name == "kind" || name.starts_with("param.")) info[name] = get_attr_string(g.get(), name);
+    if (!info.count("kind")) bad(fmt::format("group /models/{} has no attribute kind", label));
   }
 
   // Every dataset's type and shape against the axes.

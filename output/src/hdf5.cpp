@@ -310,7 +310,48 @@ std::vector<hsize_t> shape(hid_t dataset) {
   return dims;
 }
 
+namespace {}  // namespace
+
+/// Refuses a read of a chunked dataset's block when a chunk under it is not
+/// stored. HDF5 returns the fill value for a chunk its index does not list,
+/// with no error, so a damaged chunk index would otherwise read as NaN
+/// results (a zeroed block of a shard merged "cleanly" into NaN summaries).
+/// A shard stores every chunk of the chunks it computed, so there a missing
+/// one is damage.
+void require_stored(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count) {
+  Handle plist(check_id(H5Dget_create_plist(dataset), "get a dataset's creation properties"), H5Pclose);
+  if (H5Pget_layout(plist.get()) != H5D_CHUNKED) return;
+  const int rank = static_cast<int>(start.size());
+  std::vector<hsize_t> dims(start.size());
+  if (H5Pget_chunk(plist.get(), rank, dims.data()) != rank)
+    throw CubeError("cannot read a dataset's chunk shape");
+  std::vector<hsize_t> first(start.size()), last(start.size()), at(start.size());
+  for (std::size_t i = 0; i < start.size(); ++i) {
+    if (count[i] == 0) return;
+    first[i] = start[i] / dims[i];
+    last[i] = (start[i] + count[i] - 1) / dims[i];
+  }
+  std::vector<hsize_t> index = first;
+  while (true) {
+    for (std::size_t i = 0; i < index.size(); ++i) at[i] = index[i] * dims[i];
+    hsize_t size = 0;
+    if (H5Dget_chunk_storage_size(dataset, at.data(), &size) < 0 || size == 0)
+      throw CubeError("a chunk of it is not stored (its chunk index is damaged or the file was cut short)");
+    std::size_t d = index.size();
+    while (d > 0) {
+      --d;
+      if (index[d] < last[d]) {
+        ++index[d];
+        break;
+      }
+      index[d] = first[d];
+      if (d == 0) return;
+    }
+  }
+}
+
 namespace {
+
 void block_io(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
               hid_t mem_type, void* data, bool write) {
   Handle file_space(check_id(H5Dget_space(dataset), "get a dataspace"), H5Sclose);

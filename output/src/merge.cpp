@@ -156,6 +156,7 @@ class ShardReplay final : public engine::ResultSink {
     out.resize(size);
     try {
       Handle d = open_dataset(file, name);
+      output::require_stored(d.get(), start, count);  // this shard computed the block
       output::read_block(d.get(), start, count, out.data());
     } catch (const CubeError& e) {
       refuse_damaged(paths_[current_shard_], name, e);  // InputError: exit 2, the .partial is removed

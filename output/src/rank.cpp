@@ -60,13 +60,11 @@ std::string criterion_text(RankCriterion c, double tolerance, bool simulated) {
 namespace {
 
 /// A method instance rebuilt from the cube's /methods/<label> attributes.
-methods::MethodInstance instance_from_cube(const CubeReader& cube, const std::string& label) {
-  const auto& info = cube.method_info.at(label);
-  const methods::MethodEntry* entry = methods::find_method(info.at("id"));
-  if (!entry)
-    throw InputError(cube.path(), fmt::format("method {} is not known to this version", info.at("id")));
+/// Parameter values from a cube group's param.<name> text attributes.
+methods::ParamValues params_from_attributes(const std::vector<methods::ParamSpec>& specs,
+                                            const std::map<std::string, std::string>& info) {
   methods::ParamValues given;
-  for (const auto& spec : entry->info.params) {
+  for (const auto& spec : specs) {
     const auto it = info.find(fmt::format("param.{}", spec.name));
     if (it == info.end()) continue;
     if (spec.kind == methods::ParamSpec::Kind::boolean)
@@ -76,7 +74,32 @@ methods::MethodInstance instance_from_cube(const CubeReader& cube, const std::st
     else
       given[spec.name] = it->second;
   }
-  return methods::make_instance(entry->info.id, given, label);
+  return given;
+}
+
+methods::MethodInstance instance_from_cube(const CubeReader& cube, const std::string& label) {
+  const auto& info = cube.method_info.at(label);
+  const methods::MethodEntry* entry = methods::find_method(info.at("id"));
+  if (!entry)
+    throw InputError(cube.path(), fmt::format("method {} is not known to this version", info.at("id")));
+  return methods::make_instance(entry->info.id, params_from_attributes(entry->info.params, info), label);
+}
+
+/// The sampling model of the cube's model axis entry `index`, from its
+/// /models group (binomial for cubes written before it existed).
+std::shared_ptr<const engine::SamplingModel> model_from_cube(const CubeReader& cube, std::size_t index) {
+  const auto it = cube.model_info.find(cube.models.at(index));
+  if (it == cube.model_info.end()) return engine::binomial_model_ptr();
+  const auto& info = it->second;
+  const engine::ModelEntry* entry = engine::find_model(info.at("kind"));
+  if (!entry)
+    throw InputError(cube.path(), fmt::format("model {} is not known to this version", info.at("kind")));
+  try {
+    return entry->make(methods::resolve_param_list(fmt::format("model '{}'", entry->kind), entry->params,
+                                                   params_from_attributes(entry->params, info)));
+  } catch (const methods::ParameterError& e) {
+    throw InputError(cube.path(), fmt::format("group /models/{}: {}", cube.models.at(index), e.what()));
+  }
 }
 
 }  // namespace
@@ -150,18 +173,22 @@ std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& o
             methods::Side side{};
             if (!methods::parse_side(cube.sides[s], side))
               throw InputError(cube.path(), fmt::format("unknown side {}", cube.sides[s]));
+            const auto sampling = model_from_cube(cube, mo);
             const auto leader = instance_from_cube(cube, cube.methods[g.entries[0].method]);
             for (std::size_t r = 1; r < g.entries.size(); ++r) {
               const auto other = instance_from_cube(cube, cube.methods[g.entries[r].method]);
               double sum = 0, var = 0, cells = 0;
               for (std::size_t i : ns) {
                 const int n = static_cast<int>(cube.n[i]);
-                const auto ta = engine::build_table(*other.method, n, cube.levels[l], side, other.label);
-                const auto tb = engine::build_table(*leader.method, n, cube.levels[l], side, leader.label);
+                const auto ta = engine::build_table(*other.method, n, cube.levels[l], side, other.label,
+                                                    sampling->design());
+                const auto tb = engine::build_table(*leader.method, n, cube.levels[l], side, leader.label,
+                                                    sampling->design());
                 const auto reps = cube.mc_replicates(mo, i);
                 for (std::size_t pi = 0; pi < cube.p.size(); ++pi) {
-                  const auto c = engine::paired_difference(seed, mo, n, pi, cube.p[pi],
-                                                           static_cast<std::uint64_t>(reps[pi]), ta, tb);
+                  const auto c =
+                      engine::paired_difference(seed, mo, n, pi, sampling->attainable(cube.p[pi]),
+                                                static_cast<std::uint64_t>(reps[pi]), ta, tb, *sampling);
                   sum += c.difference;
                   var += c.difference_se * c.difference_se;
                   ++cells;

@@ -405,24 +405,41 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
     std::set<std::string> model_labels;
     for (const auto& item : *models->as_array()) {
       const auto& t = *item.as_table();
-      reject_unknown(ctx, t, "[[model]] ", {"kind", "label"});
       const toml::node* kind = t.get("kind");
       if (!kind) ctx.fail(&item, "[[model]] needs 'kind'");
       const std::string k = string_of(ctx, *kind, "[[model]] kind");
-      // Kinds come from the engine's model registry (one line per model).
-      std::string known;
-      for (const auto& entry : engine::model_registry())
-        known += fmt::format("{}\"{}\"", known.empty() ? "" : ", ", entry.kind);
+      // Kinds and their parameters come from the engine's model registry
+      // (one line per model), checked by the same code as method parameters.
       const engine::ModelEntry* entry = engine::find_model(k);
-      if (!entry && (k == "hypergeometric" || k == "beta-binomial"))
-        ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not available in this version yet "
-                                   "(available: {})",
-                                   k, known));
-      if (!entry)
+      if (!entry) {
+        std::string known;
+        for (const auto& e : engine::model_registry())
+          known += fmt::format("{}\"{}\"", known.empty() ? "" : ", ", e.kind);
         ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: {})", k, known));
+      }
+      std::vector<std::string> keys = {"kind", "label"};
+      for (const auto& spec : entry->params) keys.push_back(spec.name);
+      reject_unknown(ctx, t, fmt::format("[[model]] kind = \"{}\": ", k), keys);
+      methods::ParamValues given;
+      const toml::node* first_param = nullptr;
+      for (const auto& [key, node] : t) {
+        if (key.str() == "kind" || key.str() == "label") continue;
+        if (!first_param) first_param = &node;
+        given[std::string(key.str())] = param_of(ctx, node, fmt::format("[[model]] {}.{}", k, key.str()));
+      }
       engine::ModelSpec spec;
-      spec.model = entry->make({});
-      spec.label = k;
+      try {
+        spec.params = methods::resolve_param_list(fmt::format("model '{}'", k), entry->params, given);
+        spec.model = entry->make(spec.params);
+      } catch (const methods::ParameterError& e) {
+        const toml::node* at = t.get(e.key());
+        ctx.fail(at ? at : &item, fmt::format("[[model]] {}", e.what()));
+      }
+      for (int n : s.n)
+        if (const std::string why = spec.model->refuses(n); !why.empty())
+          ctx.fail(first_param ? first_param : &item,
+                   fmt::format("[[model]] {} cannot draw every n of the grid: {}", spec.model->label(), why));
+      spec.label = spec.model->label();
       if (const auto* l = t.get("label")) {
         spec.label = string_of(ctx, *l, "[[model]] label");
         check_label(ctx, *l, spec.label, "[[model]] label");

@@ -13,6 +13,7 @@
 #include <cstdint>
 #include <initializer_list>
 #include <string>
+#include <vector>
 #include <string_view>
 
 namespace covergrid::scenarios::detail {
@@ -76,6 +77,16 @@ inline void reject_unknown(const Context& ctx, const toml::table& table, const s
     if (std::find(allowed.begin(), allowed.end(), key.str()) != allowed.end()) continue;
     std::string list;
     for (auto a : allowed) list += (list.empty() ? "" : ", ") + std::string(a);
+    ctx.fail(&node, fmt::format("{}unknown key '{}' (allowed here: {})", where, key.str(), list));
+  }
+}
+
+inline void reject_unknown(const Context& ctx, const toml::table& table, const std::string& where,
+                           const std::vector<std::string>& allowed) {
+  for (const auto& [key, node] : table) {
+    if (std::find(allowed.begin(), allowed.end(), key.str()) != allowed.end()) continue;
+    std::string list;
+    for (const auto& a : allowed) list += (list.empty() ? "" : ", ") + a;
     ctx.fail(&node, fmt::format("{}unknown key '{}' (allowed here: {})", where, key.str(), list));
   }
 }

@@ -56,7 +56,9 @@ TEST_CASE("registry metadata is well formed", "[methods][registry]") {
     CHECK_FALSE(e.info.definition.empty());
     CHECK(m::find_method(e.info.id) == &e);
   }
-  CHECK(ids.size() == 14);
+  for (const char* id :
+       {"wald", "wilson", "clopper-pearson", "blaker", "fpc-wald", "fpc-wilson", "exact-hypergeometric"})
+    CHECK(ids.count(id) == 1);
   CHECK(m::find_method("no-such-method") == nullptr);
 }
 

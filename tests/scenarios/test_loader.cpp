@@ -203,6 +203,29 @@ label = "with replacement"
     REQUIRE(m.model != nullptr);
     CHECK(m.model->kind() == "binomial");
   }
+  // Model parameters are resolved by the registry's parameter list and
+  // label the model unless a label is given.
+  const auto finite = covergrid::test::scenario_from(R"(
+[grid]
+n = [10, 50]
+p = [0.5]
+levels = [0.95]
+[[method]]
+id = "wilson"
+[[model]]
+kind = "hypergeometric"
+population = 5000
+[[model]]
+kind = "hypergeometric"
+population = 50
+label = "census at 50"
+)");
+  REQUIRE(finite.models.size() == 2);
+  CHECK(finite.models[0].label == "hypergeometric(N=5000)");
+  CHECK(finite.models[0].model->design().population == 5000);
+  CHECK(std::get<double>(finite.models[0].params.at("population")) == 5000);
+  CHECK(finite.models[1].label == "census at 50");
+  CHECK(finite.models[1].model->lattice() == 50);
   // Without [[model]], one binomial model.
   const auto plain = covergrid::test::scenario_from(
       "[grid]\nn = [10]\np = [0.5]\nlevels = [0.95]\n[[method]]\nid = \"wilson\"\n");

@@ -104,10 +104,11 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
               label_b, "n", "mean diff", "min diff", "max diff", "max |diff|/se");
         for (std::size_t ni = 0; ni < s.n.size(); ++ni) {
           const int n = s.n[ni];
+          const auto& sampling = *s.models[model].model;
           const auto ta = engine::build_table(*s.methods[ia].method, n, s.levels[level], s.sides[side],
-                                              s.methods[ia].label);
+                                              s.methods[ia].label, sampling.design());
           const auto tb = engine::build_table(*s.methods[ib].method, n, s.levels[level], s.sides[side],
-                                              s.methods[ib].label);
+                                              s.methods[ib].label, sampling.design());
           const auto reps = cube.mc_replicates(model, ni);
           const auto stored_a = cube.mc_row("coverage", model, side, level, ia, ni);
           double sum = 0, lo = HUGE_VAL, hi = -HUGE_VAL, zmax = 0;
@@ -129,9 +130,9 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
               throw InputError(
                   path, fmt::format("is damaged: dataset /mc/replicates holds {} at n = {}, p = {}", reps[pi],
                                     n, s.p[pi]));
-            const auto c =
-                engine::paired_difference(s.seed, model, n, pi, s.p[pi], static_cast<std::uint64_t>(reps[pi]),
-                                          ta, tb, *s.models[model].model);
+            const auto c = engine::paired_difference(s.seed, model, n, pi, sampling.attainable(s.p[pi]),
+                                                     static_cast<std::uint64_t>(reps[pi]), ta, tb,
+                                                     *s.models[model].model);
             // The draws are the run's own, so a difference means the stored
             // value was changed after the run: damage or alteration.
             if (c.coverage_a != stored_a[pi])

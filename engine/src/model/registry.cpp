@@ -8,6 +8,7 @@ namespace covergrid::engine {
 std::span<const ModelEntry> model_registry() {
   static const std::vector<ModelEntry> entries = {
       binomial_entry(),
+      hypergeometric_entry(),
   };
   return entries;
 }

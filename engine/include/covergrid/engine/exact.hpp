@@ -31,8 +31,9 @@ CellMetrics exact_metrics(const IntervalTable& table, const ProbabilityWindow& w
 /// the table's shape; the tests hold exact_metrics to it.
 CellMetrics exact_metrics_scan(const IntervalTable& table, const ProbabilityWindow& window, double p);
 
-/// Exact coverage at p by direct summation over all x = 0..n (no window):
-/// the slow independent path the tests compare against.
+/// Exact coverage at p (snapped to the model's attainable p) by direct
+/// summation over all x = 0..n (no window): the slow independent path the
+/// tests compare against.
 double coverage_by_enumeration(const IntervalTable& table, double p,
                                const SamplingModel& model = binomial_model());
 
@@ -57,6 +58,19 @@ struct InfimumResult {
 /// limits) are merged into one event, so rounding gaps do not count as dips.
 /// With `stop_below` set, the sweep stops as soon as a coverage below it is
 /// seen (the result is then a value below it, not the infimum; `stopped`).
+///
+/// Models on a lattice (SamplingModel::lattice() = L: a finite population's
+/// K/N) attain only the points k/L, and for them the infimum is the minimum
+/// over the points in [p_lo, p_hi], attained (`from` = 0): for a monotone
+/// table and unimodal runs, over the first and last point between
+/// consecutive endpoints (and the points on one), each summed over its
+/// window; otherwise over every point (a regular subsample of 10^6 beyond
+/// that many, flagged as refined). An empty range gives NaN.
+///
+/// The same models take the uniform mean (coverage_uniform_mean,
+/// miss_uniform_means) as the average over the points in the range, and the
+/// measure below a threshold as (p_hi - p_lo) times the share of points
+/// below it; both cost one window per point.
 InfimumResult coverage_infimum(const IntervalTable& table, double p_lo, double p_hi,
                                double stop_below = -HUGE_VAL, const SamplingModel& model = binomial_model());
 

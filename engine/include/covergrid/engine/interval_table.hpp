@@ -34,8 +34,12 @@ methods::Limits named_interval(const methods::IntervalMethod& method, int x, int
 /// throws methods::NumericalError naming x, n, level and side, and the
 /// method's `label` when one is given, so that every command's one-line
 /// message says what to avoid.
+///
+/// `design` is the sampling model's (SamplingModel::design()): a method that
+/// uses it (methods::IntervalMethod::for_design) is bound to it first; the
+/// default is an infinite population of independent draws.
 IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side,
-                          std::string_view label = {});
+                          std::string_view label = {}, const methods::Design& design = {});
 
 /// The same table from half the work for a method that declares x <-> n - x
 /// symmetry, two-sided: limits for x <= n/2 computed, the rest mirrored
@@ -43,6 +47,7 @@ IntervalTable build_table(const methods::IntervalMethod& method, int n, double l
 /// Other methods and sides fall back to build_table(). Used by searches
 /// (plan) that decide, never by the cube.
 IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n, double level,
-                                   methods::Side side, std::string_view label = {});
+                                   methods::Side side, std::string_view label = {},
+                                   const methods::Design& design = {});
 
 }  // namespace covergrid::engine

@@ -29,9 +29,22 @@ class SamplingModel {
 
   /// The model's kind in the registry ("binomial").
   virtual std::string_view kind() const = 0;
-  /// The p the model evaluates for a requested p: p itself, unless the model
-  /// can only attain some proportions (a finite population's K/N).
-  virtual double attainable(int /*n*/, double p) const { return p; }
+  /// The model's label with its parameters, e.g. "hypergeometric(N=5000)".
+  virtual std::string label() const { return std::string(kind()); }
+  /// What design-aware methods may know of the sample (methods::Design).
+  virtual methods::Design design() const { return {}; }
+  /// Why the model cannot draw a sample of n (a sample larger than the
+  /// population, n not a multiple of the cluster size); empty when it can.
+  virtual std::string refuses(int /*n*/) const { return {}; }
+  /// The p the model evaluates for a requested p, the same at every n: p
+  /// itself, unless the model can only attain some proportions (a finite
+  /// population's K/N). The cube records the grid's attained p per model.
+  virtual double attainable(double p) const { return p; }
+  /// L when the true proportion can only be k/L, k = 0..L (a population of
+  /// L); 0 when it ranges over [0, 1]. Over a p-range, the worst case, the
+  /// uniform mean and the measure below a threshold are then taken over
+  /// these points (a minimum, an average, a share of the range).
+  virtual double lattice() const { return 0; }
   /// P(X = x) over the window of x that carries all but at most
   /// `out.tail_bound` of the mass (at most 1e-15), with running sums.
   virtual void window(int n, double p, ProbabilityWindow& out) const = 0;
@@ -72,5 +85,6 @@ std::shared_ptr<const SamplingModel> binomial_model_ptr();
 
 // Entry points of the model files (one per file; listed in model/registry.cpp).
 ModelEntry binomial_entry();
+ModelEntry hypergeometric_entry();
 
 }  // namespace covergrid::engine

@@ -17,6 +17,7 @@ using methods::Side;
 struct ModelSpec {
   std::string label = "binomial";
   std::shared_ptr<const SamplingModel> model = binomial_model_ptr();  // what the engine evaluates
+  methods::ParamValues params;  // the model's resolved parameters (recorded on /axes/model)
 };
 
 struct Scenario {

@@ -76,6 +76,16 @@ struct ParamSpec {
   bool min_closed = false;           // for Kind::number: min itself is allowed
 };
 
+/// What a design-aware method may know about how the sample was drawn,
+/// from the sampling model it is evaluated under: the population size N of a
+/// finite population (0: infinite, or drawn with replacement) and the cluster
+/// size of a clustered sample (1: independent draws).
+struct Design {
+  double population = 0;
+  int cluster_size = 1;
+  bool operator==(const Design&) const = default;
+};
+
 /// One method of the catalog, with its parameters already bound.
 class IntervalMethod {
  public:
@@ -99,7 +109,20 @@ class IntervalMethod {
   }
   /// Whether L(x) = 1 - U(n - x) holds, so coverage(p) = coverage(1 - p).
   virtual bool symmetric() const { return true; }
+  /// The method as it applies to samples drawn under `design`, for methods
+  /// that use it (finite-population corrections, exact hypergeometric
+  /// limits); nullptr for the rest, which mean the method itself. The
+  /// engine builds interval tables per sampling model through this.
+  virtual std::shared_ptr<const IntervalMethod> for_design(const Design& design) const {
+    (void)design;
+    return nullptr;
+  }
 };
+
+/// `method` under `design`: the bound form when the method uses the design,
+/// else `method` itself.
+std::shared_ptr<const IntervalMethod> under_design(const std::shared_ptr<const IntervalMethod>& method,
+                                                   const Design& design);
 
 /// The interval for (x, n) at `level` on `side`, raw and clipped.
 /// Precondition: method.supports(side), 0 <= x <= n, n >= 1, 0 < level < 1.

@@ -42,6 +42,16 @@ double binomial_pmf(int k, int n, double p);
 double binomial_cdf(int k, int n, double p);
 double binomial_sf(int k, int n, double p);
 
+/// The hypergeometric law: X successes in a sample of n drawn without
+/// replacement from a population of N holding K successes (Boost.Math's
+/// hypergeometric_distribution; N up to max_population). P(X = k),
+/// P(X <= k) and P(X > k), each computed directly (no 1 - cdf); 0 or 1
+/// outside the support max(0, n - (N - K)) .. min(n, K).
+inline constexpr double max_population = 1e9;
+double hypergeometric_pmf(int k, int n, std::int64_t K, std::int64_t N);
+double hypergeometric_cdf(int k, int n, std::int64_t K, std::int64_t N);
+double hypergeometric_sf(int k, int n, std::int64_t K, std::int64_t N);
+
 /// Stopping rule of every root finder: the bracket is narrower than 1e-15
 /// absolute or 4e-14 relative, well inside the contracted 1e-12 in p.
 struct root_tolerance {

@@ -41,6 +41,12 @@ const MethodEntry* find_method(std::string_view id);
 /// Throws ParameterError naming the offending key.
 ParamValues resolve_params(const MethodEntry& entry, const ParamValues& given);
 
+/// The same check for any parameter list (methods and sampling models share
+/// it): `owner` names what takes them in messages, e.g. "method 'wald'" or
+/// "model 'hypergeometric'".
+ParamValues resolve_param_list(std::string_view owner, std::span<const ParamSpec> specs,
+                               const ParamValues& given);
+
 /// "id" when all parameters are defaults, else "id(k=v,...)" for the
 /// non-default ones, in the entry's parameter order.
 std::string default_label(const MethodEntry& entry, const ParamValues& resolved);
@@ -74,5 +80,8 @@ MethodEntry likelihood_ratio_entry();
 MethodEntry arcsine_entry();
 MethodEntry logit_entry();
 MethodEntry blaker_entry();
+MethodEntry fpc_wald_entry();
+MethodEntry fpc_wilson_entry();
+MethodEntry exact_hypergeometric_entry();
 
 }  // namespace covergrid::methods

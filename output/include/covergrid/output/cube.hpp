@@ -173,6 +173,9 @@ class CubeReader {
   std::vector<std::int64_t> n;
   /// Per method label: its attributes (id, name, family, reference, param.*).
   std::map<std::string, std::map<std::string, std::string>> method_info;
+  /// Per model label: its kind and param.* attributes (empty for cubes
+  /// written before /models existed, whose models are all binomial).
+  std::map<std::string, std::map<std::string, std::string>> model_info;
 
   /// Reads every chunk of every dataset (verifying every checksum, and the
   /// value range of every /exact and /mc metric as its chunks are read);

@@ -113,6 +113,10 @@ std::vector<hsize_t> shape(hid_t dataset);
 /// Hyperslab I/O of doubles (start/count per dimension, data in C order).
 void write_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
                  const double* data);
+/// Throws CubeError unless every chunk of a chunked dataset under the block
+/// is stored: HDF5 reads a chunk missing from a damaged index as the fill
+/// value, silently. For blocks that must have been written (merge).
+void require_stored(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count);
 void read_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
                 double* data);
 void write_block_i64(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
