@@ -82,12 +82,16 @@ std::string text_block(const Claim& c, const Verdict& v) {
   s += fmt::format("  claim     {} coverage of {} at {:g} % ({}) >= {:.6g} for n in {}, p in {}\n",
                    about_name(c.kind), c.method.label, 100 * c.level, methods::side_name(c.side), v.threshold,
                    n_set_text(c.n), p_range_text(c));
+  s += fmt::format("  model     {}\n", c.model->label());
   if (v.simulated)
     s += fmt::format("  source    Monte Carlo, {} replicates per cell at {} p points ({} cells), seed {}\n",
                      v.replicates, v.cells / std::max<std::size_t>(1, c.n.size()), v.cells, c.seed);
   else
     s += fmt::format("  source    exact ({})\n",
-                     c.kind == ClaimKind::minimum
+                     c.model->lattice() > 0
+                         ? (c.kind == ClaimKind::minimum ? "minimum over the attainable p (K/N) in the range"
+                                                         : "mean over the attainable p (K/N) in the range")
+                     : c.kind == ClaimKind::minimum
                          ? "continuous infimum over the p range"
                          : "mean over p uniform on the range, by incomplete beta integrals");
   if (c.kind == ClaimKind::minimum) {
@@ -170,13 +174,13 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
     out +=
         "claim,verdict,method,level,side,about,n_from,n_to,n_count,p_lo,p_hi,tolerance,threshold,source,"
         "worst_n,worst_p,worst_from,worst_coverage,worst_miss_low,worst_miss_high,tail,n_below,share_below,"
-        "replicates,cells,lower_bound,upper_bound,replicates_to_decide,exact_verdict\n";
+        "replicates,cells,lower_bound,upper_bound,replicates_to_decide,exact_verdict,model\n";
     for (std::size_t i = 0; i < claims.size(); ++i) {
       const Claim& c = claims[i];
       const Verdict& v = verdicts[i];
       auto num = [](double x) { return csv_number(x); };
       out += fmt::format(
-          "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+          "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
           csv_field(c.name), engine::outcome_name(v.outcome), csv_field(c.method.label), num(c.level),
           methods::side_name(c.side), about_name(c.kind), c.n.front(), c.n.back(), c.n.size(), num(c.p_lo),
           num(c.p_hi), num(c.tolerance), num(v.threshold), v.simulated ? "monte-carlo" : "exact", v.worst_n,
@@ -185,7 +189,7 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
           num(v.worst_coverage), num(v.worst_miss_low), num(v.worst_miss_high), tail_text(v), v.n_below,
           num(v.share_below), v.replicates, v.cells, v.simulated ? num(v.lower_bound) : "",
           v.simulated ? num(v.upper_bound) : "", v.replicates_to_decide,
-          v.exact_decided ? engine::outcome_name(v.exact_outcome) : "");
+          v.exact_decided ? engine::outcome_name(v.exact_outcome) : "", csv_field(c.model->label()));
     }
     return out;
   }
@@ -201,6 +205,7 @@ std::string verdict_table(const std::vector<Claim>& claims, const std::vector<Ve
     out += fmt::format(
         "      \"method\": {},\n      \"level\": {},\n      \"side\": \"{}\",\n      \"about\": \"{}\",\n",
         json_string(c.method.label), json_number(c.level), methods::side_name(c.side), about_name(c.kind));
+    out += fmt::format("      \"model\": {},\n", json_string(c.model->label()));
     out += fmt::format(
         "      \"n\": [{}],\n      \"p\": [{}, {}],\n      \"tolerance\": {},\n      \"threshold\": {},\n",
         ns, json_number(c.p_lo), json_number(c.p_hi), json_number(c.tolerance), json_number(v.threshold));

@@ -112,6 +112,30 @@ methods::MethodInstance claim_method(const Context& ctx, const toml::node& node)
   }
 }
 
+/// model = "binomial" or model = { kind = "hypergeometric", population = 5000 }.
+std::shared_ptr<const engine::SamplingModel> claim_model(const Context& ctx, const toml::node& node) {
+  std::string kind;
+  methods::ParamValues given;
+  const toml::node* kind_node = &node;
+  if (node.is_table()) {
+    const auto& t = *node.as_table();
+    kind_node = t.get("kind");
+    if (!kind_node) ctx.fail(&node, "[[claim]] model needs 'kind'");
+    kind = string_of(ctx, *kind_node, "[[claim]] model.kind");
+    for (const auto& [key, value] : t)
+      if (key.str() != "kind")
+        given[std::string(key.str())] = param_of(ctx, value, fmt::format("[[claim]] model.{}", key.str()));
+  } else {
+    kind = string_of(ctx, node, "[[claim]] model");
+  }
+  try {
+    return engine::make_model(kind, given);
+  } catch (const methods::ParameterError& e) {
+    const toml::node* at = node.is_table() ? node.as_table()->get(e.key()) : nullptr;
+    ctx.fail(e.key() == "kind" ? kind_node : (at ? at : &node), fmt::format("[[claim]] model {}", e.what()));
+  }
+}
+
 }  // namespace
 
 std::vector<engine::Claim> load_claims_text(std::string_view text, const std::string& source_name) {
@@ -136,7 +160,7 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
   for (const auto& item : *list->as_array()) {
     const auto& t = *item.as_table();
     reject_unknown(ctx, t, "[[claim]] ",
-                   {"name", "method", "level", "side", "n", "p", "tolerance", "about", "replicates",
+                   {"name", "method", "model", "level", "side", "n", "p", "tolerance", "about", "replicates",
                     "p_points", "confidence"});
     engine::Claim c;
     c.seed = seed;
@@ -165,6 +189,12 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
         ctx.fail(sd, fmt::format("[[claim]] {} does not define the side \"{}\"", c.method.label, name));
     }
     c.n = claim_n(ctx, *required("n"), "[[claim]] n");
+    if (const auto* md = t.get("model")) {
+      c.model = claim_model(ctx, *md);
+      if (const std::string why = engine::refused_n(*c.model, c.n); !why.empty())
+        ctx.fail(md, fmt::format("[[claim]] model {} cannot draw every n of the claim: {}", c.model->label(),
+                                 why));
+    }
     std::tie(c.p_lo, c.p_hi) = claim_p(ctx, *required("p"), "[[claim]] p");
     if (const auto* tol = t.get("tolerance")) {
       c.tolerance = number_of(ctx, *tol, "[[claim]] tolerance");

@@ -53,6 +53,18 @@ cube = "m.h5"
 tables = "m"
 )";
 
+std::vector<std::string> split_lines(const std::string& text) {
+  std::vector<std::string> out;
+  std::size_t start = 0;
+  while (start < text.size()) {
+    const auto end = text.find('\n', start);
+    out.push_back(text.substr(start, end - start));
+    if (end == std::string::npos) break;
+    start = end + 1;
+  }
+  return out;
+}
+
 }  // namespace
 
 TEST_CASE("a finite-population model runs exactly and by simulation, and the cube records it",
@@ -144,4 +156,74 @@ TEST_CASE("a finite-population scenario in two shards merges to the single run's
   REQUIRE(run(shards.path(), {"merge", "m.shard-1-of-2.h5", "m.shard-2-of-2.h5", "-o", "m.h5", "--quiet"}) ==
           0);
   same_datasets(single.file("m.h5"), shards.file("m.h5"));
+}
+
+TEST_CASE("audit and plan take a sampling model and agree with the cube's figures", "[cli][model]") {
+  ScratchDir dir("models-audit");
+  std::ofstream(dir.path() / "m.toml") << two_models;
+  REQUIRE(call({"run", dir.file("m.toml"), "--quiet"}).status == 0);
+  const o::CubeReader cube(dir.file("m.h5"));
+  const auto inf = cube.summary("inf_coverage");
+  // The audit's worst case over n = 8 and 40 is the cube's smallest
+  // inf_coverage of the same method, model, side and p range.
+  for (std::size_t m = 0; m < 3; ++m) {
+    const auto r = call({"audit", "--method", cube.methods[m], "--level", "0.95", "--n", "8,40", "--p",
+                         "0.025:0.975", "--model", "hypergeometric:population=120", "--format", "csv"});
+    INFO(cube.methods[m] << ": " << r.err);
+    REQUIRE((r.status == 0 || r.status == 3));
+    const auto lines = split_lines(r.out);
+    REQUIRE(lines.size() == 2);
+    const auto header = covergrid::test::split_csv_line(lines[0]);
+    const auto row = covergrid::test::split_csv_line(lines[1]);
+    auto field = [&](const std::string& name) {
+      const auto at = std::find(header.begin(), header.end(), name);
+      REQUIRE(at != header.end());
+      return row[static_cast<std::size_t>(at - header.begin())];
+    };
+    CHECK(field("model") == "hypergeometric(N=120)");
+    const double expected =
+        std::min(inf[cube.summary_index(1, 0, 0, m, 0)], inf[cube.summary_index(1, 0, 0, m, 1)]);
+    CHECK(std::stod(field("worst_coverage")) == Approx(expected).margin(1e-12));
+    CHECK(r.status == (covergrid::engine::meets_coverage(expected, 0.95) ? 0 : 3));
+  }
+  // A sample larger than the population, a misspelt parameter, an unknown
+  // kind: exit 2, one line naming the option.
+  for (const auto& spec : {"hypergeometric:population=30", "hypergeometric:populaton=120", "poisson"}) {
+    const auto r = call(
+        {"audit", "--method", "wald", "--level", "0.95", "--n", "8,40", "--p", "0.1:0.9", "--model", spec});
+    INFO(spec << ": " << r.err);
+    CHECK(r.status == 2);
+    CHECK(r.err.find("--model") != std::string::npos);
+    CHECK(std::count(r.err.begin(), r.err.end(), '\n') == 1);
+  }
+  // A claims file names the model as a table.
+  std::ofstream(dir.path() / "c.toml") << R"(
+[[claim]]
+name = "lot bound"
+method = "exact-hypergeometric"
+model = { kind = "hypergeometric", population = 120 }
+level = 0.95
+n = [8, 40]
+p = { from = 0.025, to = 0.975 }
+[[claim]]
+name = "too large a sample"
+method = "wald"
+model = { kind = "hypergeometric", population = 20 }
+level = 0.95
+n = [8, 40]
+p = 0.5
+)";
+  const auto bad = call({"audit", "--claims", dir.file("c.toml")});
+  CHECK(bad.status == 2);
+  CHECK(bad.err.find("c.toml:12") != std::string::npos);
+  CHECK(bad.err.find("n = 40 is larger than the population N = 20") != std::string::npos);
+  // Plan under the model: the header says which; a search range past N is refused.
+  const auto plan = call({"plan", "--method", "exact-hypergeometric", "--level", "0.95", "--max-width", "0.3",
+                          "--p", "0.05:0.5", "--n", "1:100", "--model", "hypergeometric:population=120"});
+  CHECK(plan.status == 0);
+  CHECK(plan.out.find("hypergeometric(N=120) model") != std::string::npos);
+  const auto past = call({"plan", "--method", "wald", "--level", "0.95", "--max-width", "0.3", "--p",
+                          "0.05:0.5", "--n", "1:200", "--model", "hypergeometric:population=120"});
+  CHECK(past.status == 2);
+  CHECK(past.err.find("--model") != std::string::npos);
 }

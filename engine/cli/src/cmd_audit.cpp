@@ -23,7 +23,7 @@ namespace {
 
 struct AuditArgs {
   std::string claims_file;
-  std::string method, n, p, side = "two-sided", about = "minimum", format = "text", output;
+  std::string method, model, n, p, side = "two-sided", about = "minimum", format = "text", output;
   double level = 0, tolerance = 0, confidence = 0.95;
   std::int64_t replicates = 0, p_points = 101, seed = 0;
   int threads = 0;
@@ -44,6 +44,11 @@ engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
   if (!c.method.method->supports(c.side))
     throw InputError("--side", fmt::format("{} does not define the side {}", c.method.label, a.side));
   c.n = parse_n_set(a.n, "--n");
+  if (!a.model.empty()) {
+    c.model = parse_model_option(a.model);
+    if (const std::string why = engine::refused_n(*c.model, c.n); !why.empty())
+      throw InputError("--model " + a.model, fmt::format("cannot draw every n of --n: {}", why));
+  }
   std::tie(c.p_lo, c.p_hi) = parse_p_range(a.p, "--p");
   if (!(a.tolerance >= 0))
     throw InputError("--tolerance", fmt::format("{:g} must not be negative", a.tolerance));
@@ -94,8 +99,8 @@ int cmd_audit(const AuditArgs& a, const CLI::App& app, std::ostream& out, std::o
       if (!problem.empty()) throw InputError("-o " + a.output, problem);
   std::vector<engine::Claim> claims;
   if (!a.claims_file.empty()) {
-    for (const char* opt : {"--method", "--level", "--n", "--p", "--side", "--tolerance", "--about",
-                            "--replicates", "--p-points", "--confidence", "--seed"})
+    for (const char* opt : {"--method", "--model", "--level", "--n", "--p", "--side", "--tolerance",
+                            "--about", "--replicates", "--p-points", "--confidence", "--seed"})
       if (app.count(opt) > 0) throw InputError(opt, "goes with a claim from options, not with --claims");
     claims = scenarios::load_claims_file(a.claims_file);
   } else {
@@ -164,6 +169,9 @@ Command add_audit_command(CLI::App& app) {
   audit->add_option("--claims,--scenario", a->claims_file,
                     "claims file (TOML) holding one or more [[claim]]");
   audit->add_option("--method", a->method, "method id, optionally id:key=value,...");
+  audit->add_option("--model", a->model,
+                    "sampling model judged under: binomial (default) or kind:key=value,..., e.g. "
+                    "hypergeometric:population=5000");
   audit->add_option("--level", a->level, "nominal confidence level in [1e-6, 1 - 1e-12]");
   audit->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
   audit->add_option("--n", a->n, "sample sizes: A:B, A:B:STEP or a list A,B,C");

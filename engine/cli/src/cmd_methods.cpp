@@ -20,14 +20,22 @@ int cmd_methods(std::ostream& out) {
     }
     out << '\n';
   }
+  out << "Sampling models (scenario [[model]] kind = ..., or --model kind:key=value,... for audit and "
+         "plan);\n"
+         "fpc-wald, fpc-wilson and exact-hypergeometric take N from the model they are evaluated under.\n\n";
+  for (const auto& m : engine::model_registry()) {
+    out << fmt::format("{}\n  {}\n", m.kind, m.description);
+    for (const auto& p : m.params) out << fmt::format("  parameter {}: {}\n", p.name, p.description);
+    out << '\n';
+  }
   return exit_ok;
 }
 
 }  // namespace
 
 Command add_methods_command(CLI::App& app) {
-  auto* methods =
-      app.add_subcommand("methods", "The catalog of interval methods: ids, parameters, references");
+  auto* methods = app.add_subcommand(
+      "methods", "The catalog of interval methods and sampling models: ids, parameters, references");
   return {methods, [](std::ostream& out, std::ostream&) { return cmd_methods(out); }};
 }
 

@@ -20,7 +20,7 @@ namespace {
 struct PlanArgs {
   std::vector<std::string> methods;
   double level = 0;
-  std::string side = "two-sided", p, n = "1:5000", format = "text";
+  std::string side = "two-sided", p, n = "1:5000", format = "text", model;
   double min_coverage = -1, mean_coverage = -1, max_width = -1, max_margin = -1;
   int threads = 0;
   bool quiet = false, yes = false;
@@ -119,6 +119,13 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
         "--p",
         fmt::format("is required with {} (the p-range it must hold over, e.g. --p 0.05:0.95)", needs_p));
   std::tie(base.p_lo, base.p_hi) = parse_p_range(a.p.empty() ? std::string("0:1") : a.p, "--p");
+  if (!a.model.empty()) {
+    base.model = parse_model_option(a.model);
+    const std::vector<int> ends = {base.n_from, base.n_to};
+    if (const std::string why = engine::refused_n(*base.model, ends); !why.empty())
+      throw InputError("--model " + a.model,
+                       fmt::format("cannot draw every n of the search range --n: {}", why));
+  }
   std::vector<engine::PlanRequest> requests;
   for (const auto& m : a.methods) {
     engine::PlanRequest q = base;
@@ -146,10 +153,10 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
     out << "method,answer,n,inf_coverage,inf_coverage_p,mean_coverage,max_width,max_width_p,max_margin,"
            "coverage_far_below\n";
   else
-    out << fmt::format("Plan: {} at {:g} % ({}), p in [{:g}, {:g}]{}, n searched {}..{}\n\n", reqs,
+    out << fmt::format("Plan: {} at {:g} % ({}), p in [{:g}, {:g}]{}, n searched {}..{}, {} model\n\n", reqs,
                        100 * base.level, a.side, base.p_lo, base.p_hi,
                        a.p.empty() ? " (no --p: the coverage figures are over all p)" : "", base.n_from,
-                       base.n_to);
+                       base.n_to, base.model->label());
   const bool precision = std::any_of(base.requirements.begin(), base.requirements.end(), [](const auto& r) {
     return r.first == engine::Requirement::max_margin || r.first == engine::Requirement::max_width;
   });
@@ -231,6 +238,9 @@ Command add_plan_command(CLI::App& app) {
   auto* plan = app.add_subcommand("plan", "The smallest n meeting coverage, width or margin requirements");
   plan->add_option("--method", a->methods, "method id, optionally id:key=value,... (repeat to compare)");
   plan->add_option("--level", a->level, "nominal confidence level in [1e-6, 1 - 1e-12]");
+  plan->add_option("--model", a->model,
+                   "sampling model planned under: binomial (default) or kind:key=value,..., e.g. "
+                   "hypergeometric:population=5000 (the search range must not pass N)");
   plan->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
   plan->add_option("--p", a->p,
                    "true-proportion range LO:HI (or one value) the requirements must hold over; "

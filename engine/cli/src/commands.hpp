@@ -5,6 +5,7 @@
 /// lists them, parses, and maps errors to exit statuses.
 #include "covergrid/cli/cli.hpp"
 #include "covergrid/engine/error.hpp"
+#include "covergrid/engine/sampling_model.hpp"
 #include "covergrid/methods/registry.hpp"
 
 #include <CLI/CLI.hpp>
@@ -35,6 +36,9 @@ Command add_report_command(CLI::App& app);
 /// Parses "id" or "id:key=value,key=value" into a method instance; errors
 /// name `option` (e.g. "--method").
 methods::MethodInstance parse_method_option(const std::string& text, const std::string& option = "--method");
+/// "kind" or "kind:key=value,..." (e.g. hypergeometric:population=5000) -> the sampling model.
+std::shared_ptr<const engine::SamplingModel> parse_model_option(const std::string& text,
+                                                                const std::string& option = "--model");
 
 /// "A:B" (every n from A to B), "A:B:S" (step S), "A,B,C" or "A".
 std::vector<int> parse_n_set(const std::string& text, const std::string& option);

@@ -13,7 +13,12 @@
 
 namespace covergrid::cli {
 
-methods::MethodInstance parse_method_option(const std::string& text, const std::string& option) {
+namespace {
+
+/// "id" or "id:key=value,..." -> the id and the values (true/false, numbers,
+/// else text).
+std::pair<std::string, methods::ParamValues> parse_spec(const std::string& text, const std::string& option,
+                                                        const char* example) {
   const auto colon = text.find(':');
   const std::string id = text.substr(0, colon);
   methods::ParamValues given;
@@ -26,7 +31,7 @@ methods::MethodInstance parse_method_option(const std::string& text, const std::
       const auto eq = item.find('=');
       if (eq == std::string::npos || eq == 0)
         throw InputError(option + " " + text,
-                         "parameters are written key=value, e.g. jeffreys:boundary=false");
+                         fmt::format("parameters are written key=value, e.g. {}", example));
       const std::string key = item.substr(0, eq), value = item.substr(eq + 1);
       if (value == "true" || value == "false")
         given[key] = value == "true";
@@ -42,8 +47,25 @@ methods::MethodInstance parse_method_option(const std::string& text, const std::
       start = comma + 1;
     }
   }
+  return {id, given};
+}
+
+}  // namespace
+
+methods::MethodInstance parse_method_option(const std::string& text, const std::string& option) {
+  const auto [id, given] = parse_spec(text, option, "jeffreys:boundary=false");
   try {
     return methods::make_instance(id, given);
+  } catch (const methods::ParameterError& e) {
+    throw InputError(option + " " + text, e.what());
+  }
+}
+
+std::shared_ptr<const engine::SamplingModel> parse_model_option(const std::string& text,
+                                                                const std::string& option) {
+  const auto [kind, given] = parse_spec(text, option, "hypergeometric:population=5000");
+  try {
+    return engine::make_model(kind, given);
   } catch (const methods::ParameterError& e) {
     throw InputError(option + " " + text, e.what());
   }

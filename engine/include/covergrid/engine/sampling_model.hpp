@@ -79,6 +79,16 @@ struct ModelEntry {
 std::span<const ModelEntry> model_registry();
 /// The entry of this kind, or nullptr.
 const ModelEntry* find_model(std::string_view kind);
+/// The model of this kind with these parameters, checked against the entry's
+/// parameter list (methods::resolve_param_list; `resolved`, when given,
+/// receives the values with defaults filled). Throws methods::ParameterError:
+/// key "kind" for an unknown kind (the message lists the known ones), else
+/// the offending parameter.
+std::shared_ptr<const SamplingModel> make_model(std::string_view kind, const methods::ParamValues& given,
+                                                methods::ParamValues* resolved = nullptr);
+/// The first n of `ns` the model cannot draw, with the model's reason, as
+/// "n = 40 is larger than the population N = 30"; empty when it draws them all.
+std::string refused_n(const SamplingModel& model, std::span<const int> ns);
 /// The binomial model (independent draws from an infinite population), shared.
 const SamplingModel& binomial_model();
 std::shared_ptr<const SamplingModel> binomial_model_ptr();
