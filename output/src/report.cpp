@@ -303,6 +303,7 @@ class Report {
 
   std::string provenance() const;
   std::string method_table() const;
+  std::string model_panel() const;
   std::string section(const Combo& c) const;
   std::string coverage_figure(const Combo& c, const std::vector<std::size_t>& present) const;
   std::string heat_legend(const Combo& c) const;
@@ -420,10 +421,12 @@ std::string Report::html() {
     for (std::size_t s = 0; s < cube_.sides.size(); ++s)
       for (std::size_t l = 0; l < cube_.levels.size(); ++l) combos.push_back({mo, s, l});
   out += "<nav>\n<h2>Contents</h2>\n<ol>\n<li><a href=\"#methods\">Methods</a></li>\n";
+  if (cube_.models.size() > 1) out += "<li><a href=\"#models\">Models compared</a></li>\n";
   for (const auto& c : combos)
     out += fmt::format("<li><a href=\"#{}\">{}</a></li>\n", combo_id(c), escape(combo_title(c)));
   out += "<li><a href=\"#scenario\">Scenario</a></li>\n</ol>\n</nav>\n";
   out += method_table();
+  if (cube_.models.size() > 1) out += model_panel();
   for (const auto& c : combos) out += section(c);
   out +=
       "<section id=\"scenario\">\n<h2>Scenario</h2>\n<p>The scenario file the cube was computed from, as "
@@ -502,6 +505,46 @@ std::string Report::method_table() const {
            "</td></tr>\n";
   }
   return out + "</table>\n</section>\n";
+}
+
+/// The same method's coverage under each sampling model of the cube, per
+/// side and level: the worst case and the mean over the whole n range, as
+/// in the ranking (the attainable p of a finite population).
+std::string Report::model_panel() const {
+  std::string out =
+      "<section id=\"models\">\n<h2>Models compared</h2>\n<p>The same method under each sampling model of "
+      "the cube: its worst coverage (the smallest over n of the " +
+      std::string(exact_ ? "exact infimum over the p range" : "simulated grid minimum") +
+      ") and its mean coverage over p, averaged over n. Under a finite population the true proportion takes "
+      "only the values K/N, and both figures are taken over those.</p>\n";
+  for (std::size_t s = 0; s < cube_.sides.size(); ++s)
+    for (std::size_t l = 0; l < cube_.levels.size(); ++l) {
+      out += fmt::format(
+          "<h3>{} · nominal {}</h3>\n<table class=\"models\" data-side=\"{}\" data-level=\"{}\">\n",
+          escape(cube_.sides[s]), level_text(cube_.levels[l]), escape(cube_.sides[s]),
+          exact(cube_.levels[l]));
+      std::vector<std::string> head = {"method"};
+      for (const auto& m : cube_.models) {
+        head.push_back(m + ": worst %");
+        head.push_back(m + ": mean %");
+      }
+      out += html_head_row(head);
+      for (std::size_t m = 0; m < cube_.methods.size(); ++m) {
+        std::vector<std::pair<std::string, double>> cells = {{cube_.methods[m], nan}};
+        bool any = false;
+        for (std::size_t mo = 0; mo < cube_.models.size(); ++mo) {
+          const RankingRow* found = nullptr;
+          for (const auto& r : rank_)
+            if (r.model == mo && r.side == s && r.level == l && r.method == m) found = &r;
+          any |= found != nullptr;
+          cells.emplace_back(found ? pct(found->worst_inf) : "–", found ? found->worst_inf : nan);
+          cells.emplace_back(found ? pct(found->mean_coverage) : "–", found ? found->mean_coverage : nan);
+        }
+        if (any) out += html_table_row(cells);
+      }
+      out += "</table>\n";
+    }
+  return out + "</section>\n";
 }
 
 std::string Report::section(const Combo& c) const {

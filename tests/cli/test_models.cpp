@@ -13,6 +13,9 @@
 #include "covergrid/output/cube.hpp"
 #include "covergrid/output/hdf5.hpp"
 #include "covergrid/output/rank.hpp"
+#include "covergrid/output/svg.hpp"
+
+#include <fmt/format.h>
 
 #include <catch2/catch.hpp>
 
@@ -109,7 +112,16 @@ TEST_CASE("a finite-population model runs exactly and by simulation, and the cub
       CHECK(covergrid::engine::meets_coverage(inf[cube.summary_index(1, side, 0, 2, ni)], 0.95));
   // Under the finite population the uncorrected Wald interval does not.
   CHECK_FALSE(covergrid::engine::meets_coverage(inf[cube.summary_index(1, 0, 0, 0, 0)], 0.95));
-  CHECK(call({"report", dir.file("m.h5")}).status == 0);
+  // The report compares the models: the same method's worst and mean
+  // coverage under each, the worst being the cube's smallest inf_coverage.
+  REQUIRE(call({"report", dir.file("m.h5")}).status == 0);
+  const std::string html = covergrid::test::slurp(dir.path() / "m-report.html");
+  CHECK(html.find("<section id=\"models\">") != std::string::npos);
+  CHECK(html.find("hypergeometric(N=120): worst %") != std::string::npos);
+  const double worst =
+      std::min(inf[cube.summary_index(1, 0, 0, 0, 0)], inf[cube.summary_index(1, 0, 0, 0, 1)]);
+  const auto panel = html.substr(html.find("<section id=\"models\">"));
+  CHECK(panel.find(fmt::format("data-value=\"{}\"", o::svg::exact(worst))) != std::string::npos);
 }
 
 TEST_CASE("rank's paired differences are drawn under the cube's own model", "[cli][model]") {

@@ -51,6 +51,62 @@ cube = "exact.h5"
 tables = ""
 """
 
+MODELS = """title = "Report check: a lot of 90 and the endless binomial"
+[grid]
+n = [5, 12, 30]
+p = { from = 0.02, to = 0.98, count = 49 }
+levels = [0.95]
+sides = ["two-sided", "upper-bound"]
+[[method]]
+id = "wald"
+[[method]]
+id = "fpc-wilson"
+[[method]]
+id = "exact-hypergeometric"
+[[model]]
+kind = "binomial"
+[[model]]
+kind = "hypergeometric"
+population = 90
+[output]
+cube = "models.h5"
+tables = ""
+"""
+
+
+def check_model_panel(cube_path, html_path):
+    """The models panel: per side and level, each method's worst coverage
+    (min over n of inf_coverage) and mean coverage (mean over n of
+    mean_coverage_continuous) under each model, equal to the cube's."""
+    page = open(html_path, encoding="utf-8").read()
+    root = ET.fromstring(page.split("\n", 1)[1])
+    cells = 0
+    with h5py.File(cube_path, "r") as f:
+        models = [text(v) for v in f["summary/model"][()]]
+        sides = [text(v) for v in f["summary/side"][()]]
+        levels = list(f["summary/level"][()])
+        methods = [text(v) for v in f["summary/method"][()]]
+        assert [text(f["models/" + m].attrs["kind"]) for m in models] == ["binomial", "hypergeometric"]
+        sec = [s for s in root.iter(XH + "section") if s.get("id") == "models"]
+        assert len(sec) == 1, "no models panel"
+        for table in sec[0].iter(XH + "table"):
+            s = sides.index(table.get("data-side"))
+            l = levels.index(float(table.get("data-level")))
+            for tr in table.iter(XH + "tr"):
+                row = list(tr)
+                if row[0].tag == XH + "th":
+                    continue
+                m = methods.index(row[0].text)
+                for mo in range(len(models)):
+                    worst = np.min(f["summary/inf_coverage"][mo, s, l, m, :])
+                    mean = np.mean(f["summary/mean_coverage_continuous"][mo, s, l, m, :])
+                    assert same(float(row[1 + 2 * mo].get("data-value")), worst), (models[mo], methods[m])
+                    assert abs(float(row[2 + 2 * mo].get("data-value")) - mean) <= 1e-12, (models[mo], methods[m])
+                    cells += 2
+    assert cells == 2 * 2 * 3 * 2, cells
+    return cells
+
+
 SIMULATED = """title = "Report check: simulated only"
 seed = 5150
 [grid]
@@ -352,8 +408,11 @@ if __name__ == "__main__":
     assert "The vertical axis is broken" in page, "no broken axis for wald"
     assert "Left out: blaker does not define the lower-bound side" in page
     assert "p axis is in log-odds" in page
+    cube, html = run_case("models", MODELS, [])
+    c3 = check_case(cube, html, "exact", 80)
+    panel = check_model_panel(cube, html)
     cube, html = run_case("simulated", SIMULATED, [])
     c2 = check_case(cube, html, "mc", 80)
     assert "Simulated: every figure" in open(html, encoding="utf-8").read()
-    print(f"h5py {h5py.__version__}, numpy {np.__version__}, FreeType widths {FONT is not None}: exact report {c1}, simulated report {c2}: "
+    print(f"h5py {h5py.__version__}, numpy {np.__version__}, FreeType widths {FONT is not None}: exact report {c1}, two-model report {c3} and {panel} model-panel cells, simulated report {c2}: "
           "values equal the cube's, page self-contained")
