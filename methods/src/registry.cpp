@@ -5,6 +5,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <filesystem>
 #include <cmath>
 
 namespace covergrid::methods {
@@ -28,8 +29,14 @@ std::span<const MethodEntry> registry() {
       fpc_wald_entry(),
       fpc_wilson_entry(),
       exact_hypergeometric_entry(),
+      table_entry(),
   };
   return entries;
+}
+
+bool takes_defaults(const MethodEntry& entry) {
+  return std::none_of(entry.info.params.begin(), entry.info.params.end(),
+                      [](const ParamSpec& p) { return p.kind == ParamSpec::Kind::path; });
 }
 
 const MethodEntry* find_method(std::string_view id) {
@@ -80,6 +87,10 @@ ParamValues resolve_param_list(std::string_view owner, std::span<const ParamSpec
                                                owner, *d, spec->min));
         break;
       }
+      case ParamSpec::Kind::path:
+        if (!std::holds_alternative<std::string>(value) || std::get<std::string>(value).empty())
+          throw ParameterError(key, fmt::format("parameter '{}' of {} must be a file name", key, owner));
+        break;
       case ParamSpec::Kind::choice: {
         const std::string* s = std::get_if<std::string>(&value);
         if (!s || std::find(spec->choices.begin(), spec->choices.end(), *s) == spec->choices.end()) {
@@ -102,9 +113,23 @@ std::string default_label(const MethodEntry& entry, const ParamValues& resolved)
   for (const auto& spec : entry.info.params) {
     const auto it = resolved.find(spec.name);
     if (it == resolved.end() || it->second == spec.default_value) continue;
-    extra += (extra.empty() ? "" : ",") + spec.name + "=" + param_text(it->second);
+    std::string text = param_text(it->second);
+    if (spec.kind == ParamSpec::Kind::path) text = std::filesystem::path(text).filename().string();
+    extra += (extra.empty() ? "" : ",") + spec.name + "=" + text;
   }
   return extra.empty() ? entry.info.id : entry.info.id + "(" + extra + ")";
+}
+
+std::string missing_limits(const MethodInstance& instance, std::span<const int> ns,
+                           std::span<const double> levels, std::span<const Side> sides) {
+  if (!instance.method->limited_domain()) return {};
+  for (const Side side : sides) {
+    if (!instance.method->supports(side)) continue;
+    for (const double level : levels)
+      for (const int n : ns)
+        if (std::string why = instance.method->missing(n, level, side); !why.empty()) return why;
+  }
+  return {};
 }
 
 MethodInstance make_instance(std::string_view id, const ParamValues& given, std::string label) {

@@ -4,6 +4,7 @@
 #include "covergrid/methods/limits.hpp"
 #include "toml_fields.hpp"
 
+#include <filesystem>
 #include <fstream>
 #include <sstream>
 
@@ -84,7 +85,8 @@ std::pair<double, double> claim_p(const Context& ctx, const toml::node& node, co
   return {v, v};
 }
 
-methods::MethodInstance claim_method(const Context& ctx, const toml::node& node) {
+methods::MethodInstance claim_method(const Context& ctx, const toml::node& node,
+                                     const std::string& base_dir) {
   std::string id;
   methods::ParamValues given;
   const toml::node* id_node = &node;
@@ -99,6 +101,7 @@ methods::MethodInstance claim_method(const Context& ctx, const toml::node& node)
   } else {
     id = string_of(ctx, node, "[[claim]] method");
   }
+  if (const auto* entry = methods::find_method(id)) resolve_paths(entry->info.params, given, base_dir);
   if (!methods::find_method(id)) {
     std::string ids;
     for (const auto& e : methods::registry()) ids += (ids.empty() ? "" : ", ") + e.info.id;
@@ -138,7 +141,8 @@ std::shared_ptr<const engine::SamplingModel> claim_model(const Context& ctx, con
 
 }  // namespace
 
-std::vector<engine::Claim> load_claims_text(std::string_view text, const std::string& source_name) {
+std::vector<engine::Claim> load_claims_text(std::string_view text, const std::string& source_name,
+                                            const std::string& base_dir) {
   const Context ctx(source_name);
   toml::table root;
   try {
@@ -172,7 +176,7 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
       return v;
     };
     const toml::node* m = required("method");
-    c.method = claim_method(ctx, *m);
+    c.method = claim_method(ctx, *m, base_dir);
     const toml::node* lv = required("level");
     c.level = number_of(ctx, *lv, "[[claim]] level");
     if (!methods::level_in_range(c.level))
@@ -189,6 +193,12 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
         ctx.fail(sd, fmt::format("[[claim]] {} does not define the side \"{}\"", c.method.label, name));
     }
     c.n = claim_n(ctx, *required("n"), "[[claim]] n");
+    {
+      const std::vector<double> levels = {c.level};
+      const std::vector<methods::Side> sides = {c.side};
+      if (const std::string why = methods::missing_limits(c.method, c.n, levels, sides); !why.empty())
+        ctx.fail(m, fmt::format("[[claim]] {}: {}", c.method.label, why));
+    }
     if (const auto* md = t.get("model")) {
       c.model = claim_model(ctx, *md);
       if (const std::string why = engine::refused_n(*c.model, c.n); !why.empty())
@@ -247,7 +257,7 @@ std::vector<engine::Claim> load_claims_file(const std::string& path) {
   if (!in) throw InputError(path, "cannot open the claims file");
   std::stringstream buffer;
   buffer << in.rdbuf();
-  return load_claims_text(buffer.str(), path);
+  return load_claims_text(buffer.str(), path, std::filesystem::path(path).parent_path().string());
 }
 
 }  // namespace covergrid::scenarios

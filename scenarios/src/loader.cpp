@@ -383,6 +383,7 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
       if (key.str() == "id" || key.str() == "label") continue;
       given[std::string(key.str())] = param_of(ctx, node, fmt::format("[[method]] {}.{}", id, key.str()));
     }
+    resolve_paths(entry->info.params, given, base_dir);
     methods::MethodInstance inst;
     try {
       inst = methods::make_instance(id, given, label);
@@ -392,6 +393,11 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
     }
     if (!labels.insert(inst.label).second)
       ctx.fail(&item, fmt::format("[[method]] label \"{}\" is used twice; give one a 'label'", inst.label));
+    // A method with limits for some n only (a table) has them for the grid.
+    if (const std::string why = methods::missing_limits(inst, s.n, s.levels, s.sides); !why.empty()) {
+      const toml::node* file = t.get("file");
+      ctx.fail(file ? file : &item, fmt::format("[[method]] {}: {}", inst.label, why));
+    }
     bool any_side = false;
     for (auto side : s.sides) any_side |= inst.method->supports(side);
     if (!any_side) ctx.fail(id_node, fmt::format("[[method]] {} supports none of the scenario's sides", id));

@@ -12,6 +12,7 @@
 #include <algorithm>
 #include <cstdint>
 #include <initializer_list>
+#include <filesystem>
 #include <string>
 #include <vector>
 #include <string_view>
@@ -133,6 +134,20 @@ inline void check_label(const Context& ctx, const toml::node& node, const std::s
 inline bool bool_of(const Context& ctx, const toml::node& node, const std::string& what) {
   if (auto b = node.value_exact<bool>()) return *b;
   ctx.fail(&node, fmt::format("{} must be true or false, not {}", what, type_name(node)));
+}
+
+/// Path parameters of `specs` in `given` resolved against `base_dir` (the
+/// folder of the file that names them; empty: as written).
+inline void resolve_paths(const std::vector<methods::ParamSpec>& specs, methods::ParamValues& given,
+                          const std::string& base_dir) {
+  for (const auto& spec : specs) {
+    if (spec.kind != methods::ParamSpec::Kind::path) continue;
+    const auto it = given.find(spec.name);
+    if (it == given.end() || !std::holds_alternative<std::string>(it->second)) continue;
+    const std::filesystem::path p(std::get<std::string>(it->second));
+    if (p.empty() || p.is_absolute() || base_dir.empty()) continue;
+    it->second = (std::filesystem::path(base_dir) / p).lexically_normal().string();
+  }
 }
 
 inline methods::ParamValue param_of(const Context& ctx, const toml::node& node, const std::string& what) {

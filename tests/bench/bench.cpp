@@ -259,7 +259,8 @@ void mc_costs() {
   };
   const double one = cell({"wilson"});
   std::vector<const char*> all;
-  for (const auto& entry : m::registry()) all.push_back(entry.info.id.c_str());
+  for (const auto& entry : m::registry())
+    if (m::takes_defaults(entry)) all.push_back(entry.info.id.c_str());
   const double many = cell(all);
   if (sink == 42) fmt::print(" ");
   fmt::print("mc-costs: one cell, n = {}, p = {}, R = {} replicates, one thread\n", n, p, R);
@@ -615,6 +616,7 @@ void tables(int n) {
   double fastest = 0, slowest = 0, total = 0;
   std::string slowest_id;
   for (const auto& entry : m::registry()) {
+    if (!m::takes_defaults(entry)) continue;
     const auto mi = m::make_instance(entry.info.id, {});
     for (const auto side : {m::Side::two_sided, m::Side::lower_bound}) {
       if (!mi.method->supports(side)) continue;

@@ -44,6 +44,12 @@ engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
   if (!c.method.method->supports(c.side))
     throw InputError("--side", fmt::format("{} does not define the side {}", c.method.label, a.side));
   c.n = parse_n_set(a.n, "--n");
+  {
+    const std::vector<double> levels = {c.level};
+    const std::vector<methods::Side> sides = {c.side};
+    if (const std::string why = methods::missing_limits(c.method, c.n, levels, sides); !why.empty())
+      throw InputError("--method " + a.method, why);
+  }
   if (!a.model.empty()) {
     c.model = parse_model_option(a.model);
     if (const std::string why = engine::refused_n(*c.model, c.n); !why.empty())

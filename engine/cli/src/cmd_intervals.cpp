@@ -51,11 +51,12 @@ std::string notes(const methods::Limits& lim) {
 }
 
 /// The guarantee groups, in the order shown.
-enum class Group { guaranteed, approximate, bayesian };
+enum class Group { guaranteed, approximate, bayesian, unknown };
 
 Group group_of(const methods::MethodInfo& info) {
   if (info.guaranteed) return Group::guaranteed;
   if (info.family == methods::Family::bayesian) return Group::bayesian;
+  if (info.family == methods::Family::user_table) return Group::unknown;
   return Group::approximate;
 }
 
@@ -69,6 +70,8 @@ std::string group_heading(Group g, double level) {
                          100 * level);
     case Group::bayesian:
       return "Bayesian: posterior intervals, read as confidence intervals; no coverage guarantee";
+    case Group::unknown:
+      return "Tables: limits read from a file; what they promise is what `covergrid audit` finds";
   }
   return "";
 }
@@ -86,10 +89,19 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
     throw InputError("--side",
                      fmt::format("\"{}\" is not one of two-sided, lower-bound, upper-bound", side_text));
   std::vector<methods::MethodInstance> list;
-  if (method_texts.empty())
-    for (const auto& e : methods::registry()) list.push_back(methods::make_instance(e.info.id, {}));
-  else
-    for (const auto& t : method_texts) list.push_back(parse_method_option(t));
+  if (method_texts.empty()) {
+    for (const auto& e : methods::registry())  // a table needs its file: --method table:file=...
+      if (methods::takes_defaults(e)) list.push_back(methods::make_instance(e.info.id, {}));
+  } else {
+    for (const auto& t : method_texts) {
+      list.push_back(parse_method_option(t));
+      const std::vector<int> ns = {n};
+      const std::vector<double> levels = {level};
+      const std::vector<methods::Side> sides = {side};
+      if (const std::string why = methods::missing_limits(list.back(), ns, levels, sides); !why.empty())
+        throw InputError("--method " + t, why);
+    }
+  }
   if (csv) {
     out << "method,x,n,level,side,lower,upper,raw_lower,raw_upper\n";
     for (const auto& m : list) {
@@ -106,7 +118,7 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
   for (const auto& m : list) width = std::max(width, m.label.size());
   out << fmt::format("{} success{} in {} trial{}, observed share {:.4f}: {} intervals at {:g} %\n", x,
                      x == 1 ? "" : "es", n, n == 1 ? "" : "s", share, side_text, 100 * level);
-  for (Group g : {Group::guaranteed, Group::approximate, Group::bayesian}) {
+  for (Group g : {Group::guaranteed, Group::approximate, Group::bayesian, Group::unknown}) {
     std::string block;
     for (const auto& m : list) {
       if (!m.entry || group_of(m.entry->info) != g) continue;

@@ -133,6 +133,14 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
     if (!q.method.method->supports(q.side))
       throw InputError("--method " + m,
                        fmt::format("{} does not define the side {}", q.method.label, a.side));
+    if (q.method.method->limited_domain()) {
+      std::vector<int> ns;
+      for (int n = q.n_from; n <= q.n_to; ++n) ns.push_back(n);
+      const std::vector<double> levels = {q.level};
+      const std::vector<methods::Side> sides = {q.side};
+      if (const std::string why = methods::missing_limits(q.method, ns, levels, sides); !why.empty())
+        throw InputError("--method " + m, fmt::format("{} (plan searches every n of --n)", why));
+    }
     requests.push_back(std::move(q));
   }
   // Up-front estimate, an upper bound: every n of the range decided, for

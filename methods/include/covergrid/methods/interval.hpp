@@ -65,7 +65,9 @@ using ParamValue = std::variant<bool, double, std::string>;
 using ParamValues = std::map<std::string, ParamValue, std::less<>>;
 
 struct ParamSpec {
-  enum class Kind { boolean, number, choice };
+  /// path: a file name, resolved against the folder of the scenario or
+  /// claims file that names it (the command line: the working folder).
+  enum class Kind { boolean, number, choice, path };
   std::string name;
   Kind kind;
   ParamValue default_value;
@@ -116,6 +118,17 @@ class IntervalMethod {
   virtual std::shared_ptr<const IntervalMethod> for_design(const Design& design) const {
     (void)design;
     return nullptr;
+  }
+  /// True for a method with limits only for some (n, level, side) (a table
+  /// read from a file); missing() then says what is absent.
+  virtual bool limited_domain() const { return false; }
+  /// Why the method has no limits for some x = 0..n at (level, side) (the
+  /// first missing row, naming its file); empty when it has them all.
+  virtual std::string missing(int n, double level, Side side) const {
+    (void)n;
+    (void)level;
+    (void)side;
+    return {};
   }
 };
 

@@ -32,6 +32,11 @@ struct MethodEntry {
   std::function<std::unique_ptr<IntervalMethod>(const ParamValues&)> make;
 };
 
+/// True when the method can be made with every parameter at its default
+/// (false for a method that needs a file: the table method). Catalog-wide
+/// loops (the intervals command, registry-wide tests) take these only.
+bool takes_defaults(const MethodEntry& entry);
+
 /// Every method, in catalog order.
 std::span<const MethodEntry> registry();
 /// The entry with this id, or nullptr.
@@ -48,7 +53,8 @@ ParamValues resolve_param_list(std::string_view owner, std::span<const ParamSpec
                                const ParamValues& given);
 
 /// "id" when all parameters are defaults, else "id(k=v,...)" for the
-/// non-default ones, in the entry's parameter order.
+/// non-default ones, in the entry's parameter order (a path parameter shows
+/// only its file name).
 std::string default_label(const MethodEntry& entry, const ParamValues& resolved);
 
 /// Text form of a parameter value ("true", "0.5", "clopper-pearson").
@@ -61,6 +67,12 @@ struct MethodInstance {
   std::string label;
   std::shared_ptr<const IntervalMethod> method;
 };
+
+/// Every n of `ns`, level and side the instance's method will be asked for
+/// has limits: the first gap (methods::IntervalMethod::missing), or empty.
+/// Only methods with a limited domain (tables) are asked.
+std::string missing_limits(const MethodInstance& instance, std::span<const int> ns,
+                           std::span<const double> levels, std::span<const Side> sides);
 
 /// Builds an instance; an empty label means default_label().
 MethodInstance make_instance(std::string_view id, const ParamValues& given, std::string label = {});
@@ -83,5 +95,6 @@ MethodEntry blaker_entry();
 MethodEntry fpc_wald_entry();
 MethodEntry fpc_wilson_entry();
 MethodEntry exact_hypergeometric_entry();
+MethodEntry table_entry();
 
 }  // namespace covergrid::methods

@@ -25,7 +25,10 @@
 namespace covergrid::scenarios {
 
 std::vector<engine::Claim> load_claims_file(const std::string& path);
-std::vector<engine::Claim> load_claims_text(std::string_view text, const std::string& source_name);
+/// `base_dir`: the folder file names in the claims (a table method's file)
+/// are resolved against; empty: as written.
+std::vector<engine::Claim> load_claims_text(std::string_view text, const std::string& source_name,
+                                            const std::string& base_dir = {});
 
 /// Largest number of n values one claim may list or span.
 inline constexpr std::size_t max_claim_n_count = 1'000'000;
