@@ -9,6 +9,7 @@
 
 #include <fmt/format.h>
 
+#include <filesystem>
 #include <cmath>
 #include <memory>
 #include <sstream>
@@ -73,7 +74,9 @@ int cmd_pair(const std::string& path, const std::string& pair, bool csv, std::os
   if (!cube.has_mc())
     throw InputError(path, "holds no Monte Carlo results (the scenario had replicates = 0)");
   const engine::Scenario s =
-      scenarios::load_scenario_text(cube.attr("scenario"), path + " (its scenario)", "", false);
+      // Files its scenario names (a table's) resolve against the cube's folder.
+      scenarios::load_scenario_text(cube.attr("scenario"), path + " (its scenario)",
+                                    std::filesystem::path(path).parent_path().string(), false);
   if (s.sha256 != cube.attr("scenario_sha256"))
     throw InputError(path, "its stored scenario does not match its checksum");
   // The loops below index the cube by the scenario's grid.

@@ -19,6 +19,7 @@
 #include <fmt/format.h>
 #include <mpi.h>
 
+#include <filesystem>
 #include <chrono>
 #include <condition_variable>
 #include <cstdint>
@@ -313,7 +314,10 @@ int serve(int threads) {
   std::optional<engine::Plan> plan;
   std::string failure;
   try {
-    scenario = scenarios::load_scenario_text(text, name, "", false);
+    // Files the scenario names (a table method's) resolve as on rank 0:
+    // against the scenario file's folder (the ranks share the working folder).
+    scenario =
+        scenarios::load_scenario_text(text, name, std::filesystem::path(name).parent_path().string(), false);
     plan = engine::make_plan(*scenario);
   } catch (const std::exception& e) {
     failure = e.what();
