@@ -290,56 +290,13 @@ void summarise(const Scenario& scenario, const Plan& plan, ResultSink& sink, Sou
 namespace {
 
 /// Interval tables per (model, n index), built once by the first chunk that
-/// needs them and dropped when the last chunk of that row is written.
+/// needs them (under the model's design), shared while in use, then kept for
+/// the `keep` most recently released rows (the next chunks often continue a
+/// row). A row evicted and needed again is rebuilt: the same tables, so only
+/// time is lost.
 class RowCache {
  public:
-  RowCache(const Scenario& s, const std::vector<Combo>& combos, const std::vector<ChunkSpec>& todo)
-      : scenario_(s), combos_(combos) {
-    for (const ChunkSpec& c : todo)
-      for (std::size_t i = 0; i < c.n_count; ++i) ++remaining_[{c.model, c.n_begin + i}];
-  }
-
-  const RowTables* acquire(std::size_t model, std::size_t n_index) {
-    std::shared_ptr<Entry> entry;
-    {
-      std::lock_guard lock(mutex_);
-      auto& slot = entries_[{model, n_index}];
-      if (!slot) slot = std::make_shared<Entry>();
-      entry = slot;
-    }
-    std::call_once(entry->once, [&] {
-      entry->tables = build_row(combos_, scenario_.n[n_index], *scenario_.models[model].model);
-    });
-    return &entry->tables;
-  }
-
-  void release(std::size_t model, std::size_t n_index) {
-    std::lock_guard lock(mutex_);
-    if (--remaining_[{model, n_index}] == 0) entries_.erase({model, n_index});
-  }
-
- private:
-  struct Entry {
-    std::once_flag once;
-    RowTables tables;
-  };
-  const Scenario& scenario_;
-  const std::vector<Combo>& combos_;
-  std::mutex mutex_;
-  std::map<std::pair<std::size_t, std::size_t>, std::shared_ptr<Entry>> entries_;
-  std::map<std::pair<std::size_t, std::size_t>, std::size_t> remaining_;
-};
-
-}  // namespace
-
-namespace {
-
-/// Interval tables per (model, n index) for chunks that arrive in an order
-/// not known in advance: shared while in use, then kept for the `keep` most
-/// recently released rows (the next chunks often continue a row).
-class SharedRowCache {
- public:
-  SharedRowCache(const Scenario& s, const std::vector<Combo>& combos, std::size_t keep)
+  RowCache(const Scenario& s, const std::vector<Combo>& combos, std::size_t keep)
       : scenario_(s), combos_(combos), keep_(keep) {}
 
   const RowTables* acquire(std::size_t model, std::size_t n_index) {
@@ -413,67 +370,87 @@ class PipelineFailure {
 
 }  // namespace
 
-void compute_feed(const Scenario& scenario, const Plan& plan, ChunkFeed& feed, int threads_wanted) {
+namespace {
+
+/// The one chunk scheduler of every run: whole runs, shards (run_scenario)
+/// and the ranks of an MPI run (compute_feed). A three-stage pipeline: take
+/// chunk ids from `feed` one at a time; compute them in parallel, `tokens`
+/// in flight (bounding memory); hand each result to `feed` one at a time --
+/// in the order the ids were taken when `in_order`, else as they finish.
+/// Each chunk depends only on the scenario, so the results do not depend on
+/// the thread count or the order. Rows' interval tables are shared by the
+/// chunks in flight and kept for a few rows after their last use (a row's
+/// chunks follow one another in plan order). The first exception of the
+/// feed or a chunk stops the intake; the chunks in flight drain; it is
+/// rethrown.
+void schedule_chunks(const Scenario& scenario, const Plan& plan, ChunkFeed& feed, int threads,
+                     std::size_t tokens, bool in_order) {
   const auto combos = combos_of(scenario);
-  const int threads = threads_wanted > 0 ? threads_wanted : tbb::this_task_arena::max_concurrency();
   tbb::task_arena arena(threads);
-  const std::size_t tokens = static_cast<std::size_t>(threads) * 2;
-  SharedRowCache cache(scenario, combos, plan.n_block * 2 + 2);
+  RowCache cache(scenario, combos, plan.n_block * 2 + 2);
   using Result = std::shared_ptr<ChunkResult>;
   PipelineFailure failure;
   arena.execute([&] {
     tbb::parallel_pipeline(
-        tokens,
-        tbb::make_filter<void, std::size_t>(tbb::filter_mode::serial_in_order,
-                                            [&](tbb::flow_control& fc) -> std::size_t {
-                                              std::optional<std::size_t> id;
-                                              if (!failure.failed()) {
-                                                try {
-                                                  id = feed.next();
-                                                } catch (...) {
-                                                  failure.keep();
-                                                }
-                                              }
-                                              if (!id) {
-                                                fc.stop();
-                                                return 0;
-                                              }
-                                              return *id;
-                                            }) &
-            tbb::make_filter<std::size_t, Result>(tbb::filter_mode::parallel,
-                                                  [&](std::size_t id) -> Result {
-                                                    if (failure.failed()) return nullptr;
-                                                    try {
-                                                      const ChunkSpec& c = plan.chunks.at(id);
-                                                      std::vector<const RowTables*> rows;
-                                                      for (std::size_t i = 0; i < c.n_count; ++i)
-                                                        rows.push_back(cache.acquire(c.model, c.n_begin + i));
-                                                      auto r = std::make_shared<ChunkResult>(
-                                                          compute_with_tables(scenario, c, rows));
-                                                      for (std::size_t i = 0; i < c.n_count; ++i)
-                                                        cache.release(c.model, c.n_begin + i);
-                                                      return r;
-                                                    } catch (...) {
-                                                      failure.keep();
-                                                      return nullptr;
-                                                    }
-                                                  }) &
-            tbb::make_filter<Result, void>(tbb::filter_mode::serial_out_of_order, [&](const Result& r) {
-              if (!r || failure.failed()) return;
-              try {
-                check_written(*r, scenario);
-                feed.done(std::move(*r));
-              } catch (...) {
-                failure.keep();
-              }
-            }));
+        tokens, tbb::make_filter<void, std::size_t>(tbb::filter_mode::serial_in_order,
+                                                    [&](tbb::flow_control& fc) -> std::size_t {
+                                                      std::optional<std::size_t> id;
+                                                      if (!failure.failed()) {
+                                                        try {
+                                                          id = feed.next();
+                                                        } catch (...) {
+                                                          failure.keep();
+                                                        }
+                                                      }
+                                                      if (!id) {
+                                                        fc.stop();
+                                                        return 0;
+                                                      }
+                                                      return *id;
+                                                    }) &
+                    tbb::make_filter<std::size_t, Result>(
+                        tbb::filter_mode::parallel,
+                        [&](std::size_t id) -> Result {
+                          if (failure.failed()) return nullptr;
+                          try {
+                            const ChunkSpec c = plan.chunks.at(id);
+                            std::vector<const RowTables*> rows;
+                            for (std::size_t i = 0; i < c.n_count; ++i)
+                              rows.push_back(cache.acquire(c.model, c.n_begin + i));
+                            auto r = std::make_shared<ChunkResult>(compute_with_tables(scenario, c, rows));
+                            for (std::size_t i = 0; i < c.n_count; ++i) cache.release(c.model, c.n_begin + i);
+                            return r;
+                          } catch (...) {
+                            failure.keep();
+                            return nullptr;
+                          }
+                        }) &
+                    tbb::make_filter<Result, void>(
+                        in_order ? tbb::filter_mode::serial_in_order : tbb::filter_mode::serial_out_of_order,
+                        [&](const Result& r) {
+                          if (!r || failure.failed()) return;
+                          try {
+                            check_written(*r, scenario);
+                            feed.done(std::move(*r));
+                          } catch (...) {
+                            failure.keep();
+                          }
+                        }));
   });
   failure.rethrow();
 }
 
+int thread_count(int wanted) { return wanted > 0 ? wanted : tbb::this_task_arena::max_concurrency(); }
+
+}  // namespace
+
+void compute_feed(const Scenario& scenario, const Plan& plan, ChunkFeed& feed, int threads_wanted) {
+  const int threads = thread_count(threads_wanted);
+  schedule_chunks(scenario, plan, feed, threads, static_cast<std::size_t>(threads) * 2, false);
+}
+
 RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options) {
   const Plan plan = make_plan(scenario, options.chunk_cells);
-  const auto combos = combos_of(scenario);
   RunReport report;
   const std::vector<char> done = sink.completed();
   if (done.size() != plan.chunks.size())
@@ -482,8 +459,9 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
   std::vector<char> selected(plan.chunks.size(), options.only_chunks ? 0 : 1);
   if (options.only_chunks)
     for (std::size_t id : *options.only_chunks) selected.at(id) = 1;
-  // Chunks are values computed from their ids (the plan stores none).
-  std::vector<ChunkSpec> todo;
+  // Chunk ids still to compute, in plan order (chunks are values computed
+  // from their ids; the plan stores none).
+  std::vector<std::size_t> todo;
   std::size_t cells_done = 0, cells_total = 0;
   for (const auto& c : plan.chunks) {
     if (!selected[c.id]) continue;
@@ -493,73 +471,58 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
       ++report.chunks_resumed;
       cells_done += c.n_count * c.p_count;
     } else {
-      todo.push_back(c);
+      todo.push_back(c.id);
     }
   }
 
-  const int threads = options.threads > 0 ? options.threads : tbb::this_task_arena::max_concurrency();
-  tbb::task_arena arena(threads);
+  const int threads = thread_count(options.threads);
   // Chunks in flight (bounds memory) and chunks between checkpoints.
   const std::size_t tokens = static_cast<std::size_t>(threads) * 4;
   const std::size_t checkpoint_every = tokens;
-  RowCache cache(scenario, combos, todo);
-  std::size_t next = 0, since_checkpoint = 0;
-  auto checkpoint = [&] {
-    sink.checkpoint();
-    since_checkpoint = 0;
-    if (options.progress) options.progress(cells_done, cells_total);
-  };
 
-  // A three-stage pipeline: hand out chunks in plan order; compute them in
-  // parallel; write them one at a time in plan order. Each chunk depends only
-  // on the scenario, so the results do not depend on the thread count.
-  using Result = std::shared_ptr<ChunkResult>;
-  PipelineFailure failure;
-  arena.execute([&] {
-    tbb::parallel_pipeline(
-        tokens, tbb::make_filter<void, std::size_t>(
-                    tbb::filter_mode::serial_in_order,
-                    [&](tbb::flow_control& fc) -> std::size_t {
-                      if (next < todo.size() && options.stop && options.stop->load())
-                        report.interrupted = true;
-                      if (next >= todo.size() || report.interrupted || failure.failed()) {
-                        fc.stop();
-                        return 0;
-                      }
-                      return next++;
-                    }) &
-                    tbb::make_filter<std::size_t, Result>(
-                        tbb::filter_mode::parallel,
-                        [&](std::size_t k) -> Result {
-                          if (failure.failed()) return nullptr;
-                          try {
-                            const ChunkSpec* c = &todo[k];
-                            std::vector<const RowTables*> rows;
-                            for (std::size_t i = 0; i < c->n_count; ++i)
-                              rows.push_back(cache.acquire(c->model, c->n_begin + i));
-                            return std::make_shared<ChunkResult>(compute_with_tables(scenario, *c, rows));
-                          } catch (...) {
-                            failure.keep();
-                            return nullptr;
-                          }
-                        }) &
-                    tbb::make_filter<Result, void>(tbb::filter_mode::serial_in_order, [&](const Result& r) {
-                      if (!r || failure.failed()) return;
-                      try {
-                        check_written(*r, scenario);
-                        sink.write_chunk(*r);
-                        for (std::size_t i = 0; i < r->spec.n_count; ++i)
-                          cache.release(r->spec.model, r->spec.n_begin + i);
-                        cells_done += r->spec.n_count * r->spec.p_count;
-                        ++report.chunks_computed;
-                        if (++since_checkpoint >= checkpoint_every) checkpoint();
-                      } catch (...) {
-                        failure.keep();
-                      }
-                    }));
-  });
-  failure.rethrow();
-  checkpoint();
+  /// The run's side of the scheduler: the chunks still to do, in plan order,
+  /// until a stop is asked for; each result written to the sink in plan
+  /// order, with a checkpoint (and progress) every `checkpoint_every`.
+  class RunFeed final : public ChunkFeed {
+   public:
+    RunFeed(const std::vector<std::size_t>& todo, ResultSink& sink, const RunOptions& options,
+            RunReport& report, std::size_t& cells_done, std::size_t cells_total, std::size_t every)
+        : todo_(todo),
+          sink_(sink),
+          options_(options),
+          report_(report),
+          cells_done_(cells_done),
+          cells_total_(cells_total),
+          every_(every) {}
+    std::optional<std::size_t> next() override {
+      if (next_ < todo_.size() && options_.stop && options_.stop->load()) report_.interrupted = true;
+      if (next_ >= todo_.size() || report_.interrupted) return std::nullopt;
+      return todo_[next_++];
+    }
+    void done(ChunkResult&& r) override {
+      sink_.write_chunk(r);
+      cells_done_ += r.spec.n_count * r.spec.p_count;
+      ++report_.chunks_computed;
+      if (++since_ >= every_) checkpoint();
+    }
+    void checkpoint() {
+      sink_.checkpoint();
+      since_ = 0;
+      if (options_.progress) options_.progress(cells_done_, cells_total_);
+    }
+
+   private:
+    const std::vector<std::size_t>& todo_;
+    ResultSink& sink_;
+    const RunOptions& options_;
+    RunReport& report_;
+    std::size_t& cells_done_;
+    std::size_t cells_total_, every_;
+    std::size_t next_ = 0, since_ = 0;
+  } feed(todo, sink, options, report, cells_done, cells_total, checkpoint_every);
+
+  schedule_chunks(scenario, plan, feed, threads, tokens, true);
+  feed.checkpoint();
   if (report.interrupted) return report;
   if (options.only_chunks)
     sink.finish();
