@@ -239,3 +239,27 @@ p = 0.5
   CHECK(past.status == 2);
   CHECK(past.err.find("--model") != std::string::npos);
 }
+
+TEST_CASE("intervals under a finite population binds the design-aware methods", "[cli][model]") {
+  // 10 of 30 drawn from 57: the exact hypergeometric limits are K = 13 and 26
+  // (tests/data/reference_finite_population.csv, exact rational arithmetic).
+  const auto r = call({"intervals", "10", "30", "--model", "hypergeometric:population=57", "--method",
+                       "exact-hypergeometric", "--method", "fpc-wald", "--method", "wald", "--csv"});
+  INFO(r.err);
+  REQUIRE(r.status == 0);
+  const auto lines = split_lines(r.out);
+  REQUIRE(lines.size() == 4);
+  const auto exact = split_csv_line(lines[1]);
+  CHECK(std::stod(exact[5]) == 13.0 / 57);
+  CHECK(std::stod(exact[6]) == 26.0 / 57);
+  // The corrected Wald interval is narrower than Wald's by sqrt((N - n)/(N - 1)).
+  const auto fpc = split_csv_line(lines[2]), wald = split_csv_line(lines[3]);
+  const double ratio = (std::stod(fpc[6]) - std::stod(fpc[5])) / (std::stod(wald[6]) - std::stod(wald[5]));
+  CHECK(ratio == Approx(std::sqrt(27.0 / 56)).epsilon(1e-12));
+  CHECK(call({"intervals", "10", "30"}).out.find("drawn under") == std::string::npos);
+  CHECK(call({"intervals", "10", "30", "--model", "hypergeometric:population=57"})
+            .out.find("drawn under hypergeometric(N=57)") != std::string::npos);
+  const auto big = call({"intervals", "10", "60", "--model", "hypergeometric:population=57"});
+  CHECK(big.status == 2);
+  CHECK(big.err.find("--model") != std::string::npos);
+}

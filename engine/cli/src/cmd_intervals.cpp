@@ -77,7 +77,8 @@ std::string group_heading(Group g, double level) {
 }
 
 int cmd_intervals(int x, int n, double level, const std::string& side_text,
-                  const std::vector<std::string>& method_texts, bool csv, std::ostream& out) {
+                  const std::vector<std::string>& method_texts, const std::string& model_text, bool csv,
+                  std::ostream& out) {
   if (n < 1) throw InputError("N", fmt::format("N = {} must be at least 1", n));
   if (x < 0 || x > n) throw InputError("X", fmt::format("X = {} must lie in 0..N = 0..{}", x, n));
   check_level(level, "--level");
@@ -102,6 +103,18 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
         throw InputError("--method " + t, why);
     }
   }
+  // Under a sampling model (a finite population), the design-aware methods
+  // (finite-population corrections, the exact hypergeometric interval) take
+  // its population; the others are unchanged.
+  std::string drawn_from;
+  if (!model_text.empty()) {
+    const auto model = parse_model_option(model_text);
+    const std::vector<int> ns = {n};
+    if (const std::string why = engine::refused_n(*model, ns); !why.empty())
+      throw InputError("--model " + model_text, why);
+    for (auto& m : list) m.method = methods::under_design(m.method, model->design());
+    drawn_from = model->label();
+  }
   if (csv) {
     out << "method,x,n,level,side,lower,upper,raw_lower,raw_upper\n";
     for (const auto& m : list) {
@@ -116,8 +129,9 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
   const double share = static_cast<double>(x) / n;
   std::size_t width = 6;
   for (const auto& m : list) width = std::max(width, m.label.size());
-  out << fmt::format("{} success{} in {} trial{}, observed share {:.4f}: {} intervals at {:g} %\n", x,
-                     x == 1 ? "" : "es", n, n == 1 ? "" : "s", share, side_text, 100 * level);
+  out << fmt::format("{} success{} in {} trial{}, observed share {:.4f}: {} intervals at {:g} %{}\n", x,
+                     x == 1 ? "" : "es", n, n == 1 ? "" : "s", share, side_text, 100 * level,
+                     drawn_from.empty() ? std::string() : ", drawn under " + drawn_from);
   for (Group g : {Group::guaranteed, Group::approximate, Group::bayesian, Group::unknown}) {
     std::string block;
     for (const auto& m : list) {
@@ -147,6 +161,12 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
       << output::wrap_text(
              "The groups say what each procedure promises; `covergrid audit` and `covergrid run` show how "
              "its coverage behaves at this n. " +
+                 (drawn_from.empty()
+                      ? std::string()
+                      : "Under " + drawn_from +
+                            " the guarantees of the binomial exact intervals are proven for independent "
+                            "draws; exact-hypergeometric's is proven for this population (check the others "
+                            "with `covergrid audit --model`). ") +
                  std::string(output::coverage_caution),
              100);
   return exit_ok;
@@ -157,6 +177,7 @@ struct IntervalsArgs {
   double level = 0.95;
   std::string side = "two-sided";
   std::vector<std::string> methods;
+  std::string model;
   bool csv = false;
 };
 
@@ -172,13 +193,16 @@ Command add_intervals_command(CLI::App& app) {
   intervals->add_option("--side", a->side, "two-sided, lower-bound or upper-bound (default two-sided)");
   intervals->add_option("--method", a->methods,
                         "method id, optionally id:key=value,... (repeatable; default all)");
+  intervals->add_option("--model", a->model,
+                        "how the sample was drawn, e.g. hypergeometric:population=500 (a finite population: "
+                        "fpc-wald, fpc-wilson and exact-hypergeometric use N; default binomial)");
   intervals->add_flag("--csv", a->csv, "CSV output with raw (unclipped) limits");
   intervals->footer(
       "Methods are grouped by what they promise: guaranteed coverage (exact tail inversion), "
       "approximate, Bayesian. Each row draws the interval on [0, 1] against the observed share.\n\n" +
       output::wrap_text(output::coverage_caution, 100));
   return {intervals, [a](std::ostream& out, std::ostream&) {
-            return cmd_intervals(a->x, a->n, a->level, a->side, a->methods, a->csv, out);
+            return cmd_intervals(a->x, a->n, a->level, a->side, a->methods, a->model, a->csv, out);
           }};
 }
 
