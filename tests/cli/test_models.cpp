@@ -263,3 +263,22 @@ TEST_CASE("intervals under a finite population binds the design-aware methods", 
   CHECK(big.status == 2);
   CHECK(big.err.find("--model") != std::string::npos);
 }
+
+TEST_CASE("audit and plan under a clustered model", "[cli][model]") {
+  // Clusters of 10 at icc = 0.1: Clopper-Pearson's 95 % claim over n = 20..60
+  // (multiples of 10) fails; an n that is not a multiple is refused, and plan
+  // (which searches every n) refuses the model.
+  const auto r = call({"audit", "--method", "clopper-pearson", "--level", "0.95", "--n", "20:60:10", "--p",
+                       "0.05:0.5", "--model", "beta-binomial:cluster_size=10,icc=0.1", "--format", "csv"});
+  INFO(r.err);
+  CHECK(r.status == 3);
+  CHECK(r.out.find("beta-binomial(k=10,icc=0.1)") != std::string::npos);
+  const auto odd = call({"audit", "--method", "wilson", "--level", "0.95", "--n", "25", "--p", "0.1:0.9",
+                         "--model", "beta-binomial:cluster_size=10,icc=0.1"});
+  CHECK(odd.status == 2);
+  CHECK(odd.err.find("not a multiple of the cluster size k = 10") != std::string::npos);
+  const auto plan = call({"plan", "--method", "wilson", "--level", "0.95", "--max-width", "0.3", "--p",
+                          "0.05:0.5", "--n", "10:100", "--model", "beta-binomial:cluster_size=10,icc=0.1"});
+  CHECK(plan.status == 2);
+  CHECK(plan.err.find("plan searches each") != std::string::npos);
+}

@@ -1,7 +1,7 @@
 // The sampling-model seam: the registry, the binomial model against the
 // binomial functions it wraps, and the engine's model-free paths (a model
 // whose runs are not known to be unimodal is searched densely and flagged;
-// a model without a closed-form mass has no exact uniform mean).
+// a model without a closed-form mass takes its uniform means by quadrature).
 #include "covergrid/engine/binomial_window.hpp"
 #include "covergrid/engine/exact.hpp"
 #include "covergrid/engine/interval_table.hpp"
@@ -93,7 +93,13 @@ TEST_CASE("without unimodal runs the worst case is searched densely and flagged"
   // Point values go through the model's own pmf.
   CHECK(e::coverage_by_enumeration(t, 0.3, plain) ==
         Approx(e::coverage_by_enumeration(t, 0.3)).epsilon(1e-14));
-  // No closed-form mass over p: the exact uniform mean is refused, not guessed.
-  CHECK_THROWS_AS(e::coverage_uniform_mean(t, 0.05, 0.95, plain), std::logic_error);
+  // No closed-form mass over p: the means come from Gauss-Legendre
+  // quadrature per segment, held here to the binomial's closed form.
+  CHECK(e::coverage_uniform_mean(t, 0.05, 0.95, plain) ==
+        Approx(e::coverage_uniform_mean(t, 0.05, 0.95)).margin(1e-10));
+  const auto quad = e::miss_uniform_means(t, 0.05, 0.95, plain),
+             closed = e::miss_uniform_means(t, 0.05, 0.95);
+  CHECK(quad[0] == Approx(closed[0]).margin(1e-10));
+  CHECK(quad[1] == Approx(closed[1]).margin(1e-10));
   CHECK(e::coverage_uniform_mean(t, 0.3, 0.3, plain) == e::coverage_by_enumeration(t, 0.3, plain));
 }

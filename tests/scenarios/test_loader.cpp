@@ -226,6 +226,12 @@ label = "census at 50"
   CHECK(std::get<double>(finite.models[0].params.at("population")) == 5000);
   CHECK(finite.models[1].label == "census at 50");
   CHECK(finite.models[1].model->lattice() == 50);
+  const auto clustered = covergrid::test::scenario_from(
+      "[grid]\nn = [20, 40]\np = [0.5]\nlevels = [0.95]\n[[method]]\nid = \"wilson\"\n[[model]]\n"
+      "kind = \"beta-binomial\"\ncluster_size = 20\nicc = 0.05\n");
+  REQUIRE(clustered.models.size() == 1);
+  CHECK(clustered.models[0].label == "beta-binomial(k=20,icc=0.05)");
+  CHECK(clustered.models[0].model->design().cluster_size == 20);
   // Without [[model]], one binomial model.
   const auto plain = covergrid::test::scenario_from(
       "[grid]\nn = [10]\np = [0.5]\nlevels = [0.95]\n[[method]]\nid = \"wilson\"\n");

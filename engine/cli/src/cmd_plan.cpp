@@ -121,10 +121,15 @@ int cmd_plan(const PlanArgs& a, const CLI::App& app, std::ostream& out, std::ost
   std::tie(base.p_lo, base.p_hi) = parse_p_range(a.p.empty() ? std::string("0:1") : a.p, "--p");
   if (!a.model.empty()) {
     base.model = parse_model_option(a.model);
-    const std::vector<int> ends = {base.n_from, base.n_to};
-    if (const std::string why = engine::refused_n(*base.model, ends); !why.empty())
-      throw InputError("--model " + a.model,
-                       fmt::format("cannot draw every n of the search range --n: {}", why));
+    // plan searches every n of the range, so the model must draw each (a
+    // clustered model, which draws only multiples of its cluster size, is
+    // refused unless its clusters are single units).
+    std::vector<int> range;
+    for (int n = base.n_from; n <= base.n_to; ++n) range.push_back(n);
+    if (const std::string why = engine::refused_n(*base.model, range); !why.empty())
+      throw InputError(
+          "--model " + a.model,
+          fmt::format("cannot draw every n of the search range --n (plan searches each): {}", why));
   }
   std::vector<engine::PlanRequest> requests;
   for (const auto& m : a.methods) {

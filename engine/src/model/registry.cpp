@@ -9,10 +9,15 @@
 
 namespace covergrid::engine {
 
+// Entry points declared here, beside the one line each: a new model touches
+// no header.
+ModelEntry beta_binomial_entry();
+
 std::span<const ModelEntry> model_registry() {
   static const std::vector<ModelEntry> entries = {
       binomial_entry(),
       hypergeometric_entry(),
+      beta_binomial_entry(),
   };
   return entries;
 }
