@@ -405,61 +405,8 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   }
   if (s.methods.empty()) ctx.fail(m_node, "no [[method]] entries");
 
-  // [[model]]
-  if (const toml::node* models = root.get("model")) {
-    if (!models->is_array_of_tables()) ctx.fail(models, "model must be an array of tables, [[model]]");
-    std::set<std::string> model_labels;
-    for (const auto& item : *models->as_array()) {
-      const auto& t = *item.as_table();
-      const toml::node* kind = t.get("kind");
-      if (!kind) ctx.fail(&item, "[[model]] needs 'kind'");
-      const std::string k = string_of(ctx, *kind, "[[model]] kind");
-      // Kinds and their parameters come from the engine's model registry
-      // (one line per model), checked by the same code as method parameters.
-      const engine::ModelEntry* entry = engine::find_model(k);
-      if (!entry) {
-        std::string known;
-        for (const auto& e : engine::model_registry())
-          known += fmt::format("{}\"{}\"", known.empty() ? "" : ", ", e.kind);
-        ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: {})", k, known));
-      }
-      std::vector<std::string> keys = {"kind", "label"};
-      for (const auto& spec : entry->params) keys.push_back(spec.name);
-      reject_unknown(ctx, t, fmt::format("[[model]] kind = \"{}\": ", k), keys);
-      methods::ParamValues given;
-      const toml::node* first_param = nullptr;
-      for (const auto& [key, node] : t) {
-        if (key.str() == "kind" || key.str() == "label") continue;
-        if (!first_param) first_param = &node;
-        given[std::string(key.str())] = param_of(ctx, node, fmt::format("[[model]] {}.{}", k, key.str()));
-      }
-      engine::ModelSpec spec;
-      try {
-        spec.params = methods::resolve_param_list(fmt::format("model '{}'", k), entry->params, given);
-        spec.model = entry->make(spec.params);
-      } catch (const methods::ParameterError& e) {
-        const toml::node* at = t.get(e.key());
-        ctx.fail(at ? at : &item, fmt::format("[[model]] {}", e.what()));
-      }
-      for (int n : s.n)
-        if (const std::string why = spec.model->refuses(n); !why.empty())
-          ctx.fail(first_param ? first_param : &item,
-                   fmt::format("[[model]] {} cannot draw every n of the grid: {}", spec.model->label(), why));
-      spec.label = spec.model->label();
-      if (const auto* l = t.get("label")) {
-        spec.label = string_of(ctx, *l, "[[model]] label");
-        check_label(ctx, *l, spec.label, "[[model]] label");
-      }
-      if (!model_labels.insert(spec.label).second)
-        ctx.fail(&item, fmt::format("[[model]] label \"{}\" is used twice", spec.label));
-      s.models.push_back(spec);
-      if (s.models.size() > engine::max_stream_models)
-        ctx.fail(&item,
-                 fmt::format("[[model]] more than {} models in one scenario", engine::max_stream_models));
-    }
-  } else {
-    s.models.push_back({});
-  }
+  // [[model]] (models.cpp)
+  s.models = read_models(ctx, root, s.n);
   // The grid's size, refused before anything is planned or allocated.
   const double cells = static_cast<double>(s.n.size()) * static_cast<double>(s.p.size()) *
                        static_cast<double>(s.models.size());

@@ -2,6 +2,7 @@
 // Shared by the scenario and claims loaders (not installed): typed access to
 // TOML values with messages that name the file, line and key.
 #include "covergrid/engine/error.hpp"
+#include "covergrid/engine/scenario.hpp"
 #include "covergrid/methods/registry.hpp"
 
 #include <fmt/format.h>
@@ -157,5 +158,10 @@ inline methods::ParamValue param_of(const Context& ctx, const toml::node& node, 
   if (auto s = node.value_exact<std::string>()) return *s;
   ctx.fail(&node, fmt::format("{} must be a boolean, number or string, not {}", what, type_name(node)));
 }
+
+/// The [[model]] tables of a scenario (models.cpp), checked against the
+/// grid's n; one binomial model when there are none.
+std::vector<engine::ModelSpec> read_models(const Context& ctx, const toml::table& root,
+                                           const std::vector<int>& ns);
 
 }  // namespace covergrid::scenarios::detail
