@@ -281,9 +281,10 @@ double uniform_mass_of(const SamplingModel& model, int x, int n, double a, doubl
 
 namespace {
 
-/// True when the model gives the mass of x over a p-range in closed form.
+/// True when the model gives the mass of x over a p-range in closed form
+/// (asked over an empty range, which costs a closed form nothing).
 bool has_closed_mass(const SamplingModel& model, int n) {
-  return model.uniform_mass(0, n, 0.0, 1.0).has_value();
+  return model.uniform_mass(0, n, 0.0, 0.0).has_value();
 }
 
 }  // namespace

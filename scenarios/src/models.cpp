@@ -30,10 +30,11 @@ std::vector<engine::ModelSpec> read_models(const Context& ctx, const toml::table
       // (one line per model), checked by the same code as method parameters.
       const engine::ModelEntry* entry = engine::find_model(k);
       if (!entry) {
-        std::string known;
-        for (const auto& e : engine::model_registry())
-          known += fmt::format("{}\"{}\"", known.empty() ? "" : ", ", e.kind);
-        ctx.fail(kind, fmt::format("[[model]] kind = \"{}\" is not a known model (known: {})", k, known));
+        try {
+          engine::make_model(k, {});  // throws, listing the known kinds
+        } catch (const methods::ParameterError& e) {
+          ctx.fail(kind, fmt::format("[[model]] kind = {}", e.what()));
+        }
       }
       std::vector<std::string> keys = {"kind", "label"};
       for (const auto& spec : entry->params) keys.push_back(spec.name);
@@ -47,8 +48,7 @@ std::vector<engine::ModelSpec> read_models(const Context& ctx, const toml::table
       }
       engine::ModelSpec spec;
       try {
-        spec.params = methods::resolve_param_list(fmt::format("model '{}'", k), entry->params, given);
-        spec.model = entry->make(spec.params);
+        spec.model = engine::make_model(k, given, &spec.params);
       } catch (const methods::ParameterError& e) {
         const toml::node* at = t.get(e.key());
         ctx.fail(at ? at : &item, fmt::format("[[model]] {}", e.what()));
