@@ -181,7 +181,8 @@ void simulate_row(const Claim& c, int n, const std::vector<double>& ps, std::uin
     const double p = c.model->attainable(ps[j]);  // a finite population's K/N
     c.model->window(n, p, window);
     const CellStream stream(c.seed, 0, static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(j));
-    simulate_cell(window, stream, ReplicateRule{replicates, 0, 0}, tables, p, draws);
+    const auto clusters = cluster_sampler_for(*c.model, n, p, tables);
+    simulate_cell(window, stream, ReplicateRule{replicates, 0, 0}, tables, p, draws, clusters.get());
     const McMetrics m = mc_metrics(table, window, draws, p);
     SimCell& cell = out[j];
     cell.coverage = m[index(Metric::coverage)];
@@ -377,13 +378,14 @@ WorkEstimate estimate_audit(const Claim& c, int threads) {
         build_table(*c.method.method, n, c.level, c.side, c.method.label, c.model->design());
     const std::vector<const IntervalTable*> tables = {&table};
     CellDraws draws;
+    const auto clusters = cluster_sampler_for(*c.model, n, mid[0], tables);
     std::uint64_t drawn = 0;
     const double t0 = steady_seconds();
     double took = 0;
     for (std::uint32_t k = 0; took < 0.02 && drawn < c.replicates; ++k) {
       const CellStream stream(c.seed, 1, static_cast<std::uint32_t>(n), k);
       const std::uint64_t r = std::min<std::uint64_t>(c.replicates - drawn, 4096);
-      simulate_cell(window, stream, ReplicateRule{r, 0, 0}, tables, mid[0], draws);
+      simulate_cell(window, stream, ReplicateRule{r, 0, 0}, tables, mid[0], draws, clusters.get());
       drawn += r;
       took = steady_seconds() - t0;
     }

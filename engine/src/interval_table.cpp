@@ -25,14 +25,39 @@ methods::Limits named_interval(const methods::IntervalMethod& method, int x, int
   }
 }
 
+methods::Limits named_clustered_interval(const IntervalTable& table, int x, const methods::ClusterCounts& c) {
+  try {
+    return methods::clustered_interval(*table.clustered, x, c, table.level, table.side);
+  } catch (const methods::ParameterError&) {
+    throw;
+  } catch (const std::exception& e) {
+    throw methods::NumericalError(
+        fmt::format("{}numerical failure at x = {}, n = {} in {} clusters (sum of squared cluster counts "
+                    "{}), level = {}, "
+                    "side = {}: {}",
+                    table.label.empty() ? std::string() : fmt::format("method '{}': ", table.label), x,
+                    c.clusters * c.cluster_size, c.clusters, c.sum_squares, table.level,
+                    methods::side_name(table.side), e.what()));
+  }
+}
+
 namespace {
 
-IntervalTable build(const methods::IntervalMethod& method, int n, double level, methods::Side side,
+IntervalTable build(const std::shared_ptr<const methods::IntervalMethod>& bound,
+                    const methods::IntervalMethod& method, int n, double level, methods::Side side,
                     bool mirror, std::string_view label) {
   IntervalTable t;
   t.n = n;
   if (!method.supports(side)) {
     t.supported = false;
+    return t;
+  }
+  if (method.needs_clusters()) {
+    t.supported = false;
+    t.clustered = bound;
+    t.level = level;
+    t.side = side;
+    t.label = std::string(label);
     return t;
   }
   const std::size_t size = static_cast<std::size_t>(n) + 1;
@@ -69,7 +94,7 @@ IntervalTable build(const methods::IntervalMethod& method, int n, double level, 
 IntervalTable build_table(const methods::IntervalMethod& method, int n, double level, methods::Side side,
                           std::string_view label, const methods::Design& design) {
   const auto bound = method.for_design(design);
-  return build(bound ? *bound : method, n, level, side, false, label);
+  return build(bound, bound ? *bound : method, n, level, side, false, label);
 }
 
 IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n, double level,
@@ -77,7 +102,7 @@ IntervalTable build_table_mirrored(const methods::IntervalMethod& method, int n,
                                    const methods::Design& design) {
   const auto bound = method.for_design(design);
   const methods::IntervalMethod& m = bound ? *bound : method;
-  return build(m, n, level, side, side == methods::Side::two_sided && m.symmetric(), label);
+  return build(bound, m, n, level, side, side == methods::Side::two_sided && m.symmetric(), label);
 }
 
 }  // namespace covergrid::engine

@@ -104,7 +104,8 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
       if (r.has_mc) {
         const CellStream stream(scenario.seed, static_cast<std::uint32_t>(chunk.model),
                                 static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(p_index));
-        simulate_cell(window, stream, rule, row_tables, p, draws);
+        const auto clusters = cluster_sampler_for(model, n, p, row_tables);
+        simulate_cell(window, stream, rule, row_tables, p, draws, clusters.get());
         r.mc_replicates[i * chunk.p_count + j] = static_cast<double>(draws.replicates);
         for (std::size_t c = 0; c < combos; ++c) {
           const McMetrics m = mc_metrics(*row_tables[c], window, draws, p);
@@ -181,7 +182,11 @@ void check_written(const ChunkResult& r, const Scenario& scenario) {
   const std::size_t methods = scenario.methods.size(), levels = scenario.levels.size();
   for (std::size_t c = 0; c < r.combos; ++c) {
     const Side side = scenario.sides[c / (levels * methods)];
-    if (!scenario.methods[c % methods].method->supports(side)) continue;  // NaN by design
+    const auto& method = scenario.methods[c % methods].method;
+    if (!method->supports(side)) continue;  // NaN by design
+    // NaN by design too: a method that needs the cluster counts (Monte Carlo only).
+    if (methods::under_design(method, scenario.models[r.spec.model].model->design())->needs_clusters())
+      continue;
     for (std::size_t k = 0; k < cells; ++k)
       if (std::isnan(r.exact[index(Metric::coverage)][c * cells + k]))
         throw std::logic_error("internal: a computed cell was left unset in chunk " +

@@ -65,4 +65,22 @@ Limits interval(const IntervalMethod& method, int x, int n, double level, Side s
   return out;
 }
 
+Limits clustered_interval(const IntervalMethod& method, int x, const ClusterCounts& c, double level,
+                          Side side) {
+  const double alpha = 1.0 - level;
+  RawLimits raw{0.0, 1.0};
+  switch (side) {
+    case Side::two_sided:
+      raw = {method.cluster_lower(x, c, alpha / 2), method.cluster_upper(x, c, alpha / 2)};
+      break;
+    case Side::lower_bound:
+      raw = {method.cluster_lower(x, c, alpha), 1.0};
+      break;
+    case Side::upper_bound:
+      raw = {0.0, method.cluster_upper(x, c, alpha)};
+      break;
+  }
+  return {std::clamp(raw.lower, 0.0, 1.0), std::clamp(raw.upper, 0.0, 1.0), raw.lower, raw.upper};
+}
+
 }  // namespace covergrid::methods

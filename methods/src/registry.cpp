@@ -29,6 +29,9 @@ std::span<const MethodEntry> registry() {
       fpc_wald_entry(),
       fpc_wilson_entry(),
       exact_hypergeometric_entry(),
+      deff_wilson_entry(),
+      deff_clopper_pearson_entry(),
+      deff_jeffreys_entry(),
       table_entry(),
   };
   return entries;

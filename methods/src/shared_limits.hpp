@@ -8,8 +8,9 @@ double clopper_pearson_lower(int x, int n, double a_lo);
 double clopper_pearson_upper(int x, int n, double a_hi);
 
 /// One Wilson score limit (wilson.cpp) at normal quantile z, sign -1 lower,
-/// +1 upper; fpc-wilson calls it with its corrected z.
-double wilson_limit(int x, int n, double z, int sign);
+/// +1 upper; fpc-wilson calls it with its corrected z, the design-effect
+/// form with effective (non-integer) counts.
+double wilson_limit(double x, double n, double z, int sign);
 
 /// The finite-population correction (N - n) / (N - 1) (fpc_wald.cpp); 1 for
 /// N = 0 (an infinite population), 0 for a census. Shared by fpc-wald and

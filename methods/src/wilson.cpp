@@ -10,7 +10,7 @@
 
 namespace covergrid::methods {
 
-double wilson_limit(int x, int n, double z, int sign) {
+double wilson_limit(double x, double n, double z, int sign) {
   const double nn = n;
   const double p = x / nn;
   const double z2 = z * z;

@@ -13,6 +13,7 @@
 #include <cmath>
 #include <cstdlib>
 #include <limits>
+#include <optional>
 
 namespace covergrid::output {
 
@@ -107,10 +108,22 @@ std::shared_ptr<const engine::SamplingModel> model_from_cube(const CubeReader& c
 std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& options) {
   if (!cube.complete()) throw InputError(cube.path(), "is not complete: finish its run first");
   const bool ex = cube.has_exact();
-  const auto worst = cube.summary(ex ? "inf_coverage" : "mc_min_coverage");
-  const auto mean = cube.summary(ex ? "mean_coverage_continuous" : "mc_mean_coverage");
-  const auto rms = cube.summary(ex ? "rms_deviation" : "mc_rms_deviation");
-  const auto width = cube.summary(ex ? "mean_width" : "mc_mean_width");
+  // The figures ranked: exact where the cube has them, else simulated; a
+  // method with no exact figures in a cube that has both (a design-effect
+  // method in clustered samples) is ranked on its simulated ones after the
+  // others (RankEntry::simulated).
+  struct Figures {
+    std::vector<double> worst, mean, rms, width;
+  };
+  auto figures = [&](bool exact) {
+    return Figures{cube.summary(exact ? "inf_coverage" : "mc_min_coverage"),
+                   cube.summary(exact ? "mean_coverage_continuous" : "mc_mean_coverage"),
+                   cube.summary(exact ? "rms_deviation" : "mc_rms_deviation"),
+                   cube.summary(exact ? "mean_width" : "mc_mean_width")};
+  };
+  const Figures main = figures(ex);
+  const std::optional<Figures> simulated =
+      ex && cube.has_mc() ? std::optional<Figures>(figures(false)) : std::nullopt;
   std::vector<std::pair<std::int64_t, std::int64_t>> bands = options.bands;
   if (bands.empty()) {
     const std::size_t k = std::min<std::size_t>(3, cube.n.size());
@@ -134,32 +147,38 @@ std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& o
             throw InputError("--bands", fmt::format("the band {}..{} holds none of the cube's n", lo, hi));
           g.n_count = ns.size();
           const double threshold = cube.levels[l] - options.tolerance;
-          for (std::size_t m = 0; m < cube.methods.size(); ++m) {
+          auto entry = [&](std::size_t m, const Figures& f) -> std::optional<RankEntry> {
             RankEntry e;
             e.method = m;
             e.worst_coverage = std::numeric_limits<double>::infinity();
-            bool defined = true;
             for (std::size_t i : ns) {
               const std::size_t at = cube.summary_index(mo, s, l, m, i);
-              if (std::isnan(worst[at])) {
-                defined = false;
-                break;
-              }
-              if (worst[at] < e.worst_coverage) {
-                e.worst_coverage = worst[at];
+              if (std::isnan(f.worst[at])) return std::nullopt;  // the method does not define this side
+              if (f.worst[at] < e.worst_coverage) {
+                e.worst_coverage = f.worst[at];
                 e.worst_n = cube.n[i];
               }
-              e.mean_coverage += mean[at];
-              e.rms_deviation += rms[at];
-              e.mean_width += width[at];
+              e.mean_coverage += f.mean[at];
+              e.rms_deviation += f.rms[at];
+              e.mean_width += f.width[at];
             }
-            if (!defined) continue;  // the method does not define this side
             const double k = static_cast<double>(ns.size());
             e.mean_coverage /= k;
             e.rms_deviation /= k;
             e.mean_width /= k;
             e.eligible = engine::meets_coverage(e.worst_coverage, threshold);
-            g.entries.push_back(e);
+            return e;
+          };
+          std::vector<RankEntry> only_simulated;
+          for (std::size_t m = 0; m < cube.methods.size(); ++m) {
+            if (auto e = entry(m, main)) {
+              g.entries.push_back(*e);
+            } else if (simulated) {
+              if (auto q = entry(m, *simulated)) {
+                q->simulated = true;
+                only_simulated.push_back(*q);
+              }
+            }
           }
           auto order = [&](const RankEntry& a, const RankEntry& b) {
             return ranks_before(options.criterion,
@@ -167,6 +186,8 @@ std::vector<RankGroup> rank_methods(const CubeReader& cube, const RankOptions& o
                                 {b.eligible, b.worst_coverage, b.mean_width, b.rms_deviation});
           };
           std::stable_sort(g.entries.begin(), g.entries.end(), order);
+          std::stable_sort(only_simulated.begin(), only_simulated.end(), order);
+          g.entries.insert(g.entries.end(), only_simulated.begin(), only_simulated.end());
           for (std::size_t i = 0; i < g.entries.size(); ++i) g.entries[i].rank = static_cast<int>(i) + 1;
           // Paired differences against the first method, on the run's own draws.
           if (!ex && options.paired && g.entries.size() > 1) {
@@ -222,7 +243,8 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
                      g.simulated ? "coverage vs first (paired)" : "");
     for (const auto& e : g.entries) {
       std::string pair;
-      if (e.has_pair) pair = fmt::format("{:+.5f} +/- {:.5f}", e.pair_difference, e.pair_se);
+      if (e.simulated) pair = "[simulated only] ";
+      if (e.has_pair) pair += fmt::format("{:+.5f} +/- {:.5f}", e.pair_difference, e.pair_se);
       s += fmt::format("  {:>4}  {:<{}}  {:>10.6f}  {:>7}  {:>10.6f}  {:>10.6f}  {:>10.6f}  {}{}\n", e.rank,
                        cube.methods[e.method], width, e.worst_coverage, e.worst_n, e.mean_coverage,
                        e.rms_deviation, e.mean_width, e.eligible ? "" : below_mark, pair);
@@ -241,6 +263,17 @@ std::string rank_text(const CubeReader& cube, const std::vector<RankGroup>& grou
                             : "exact mean coverage over the p range (uniform p)",
                   engine::threshold_words(options.tolerance)),
       100);
+  if (std::any_of(groups.begin(), groups.end(), [](const RankGroup& g) {
+        return std::any_of(g.entries.begin(), g.entries.end(),
+                           [](const RankEntry& e) { return e.simulated; });
+      }))
+    s += "\n" +
+         wrap_text(
+             "[simulated only] marks a method with no exact figures (a design-effect method in "
+             "clustered samples needs each cluster's count, which only simulation draws): it "
+             "follows the others, ranked among such methods on its Monte Carlo figures, worst cov being "
+             "the smallest simulated coverage on the p grid.",
+             100);
   if (simulated)
     s += "\nPaired differences re-draw the run's own samples (common random numbers); +/- is one standard "
          "error\n"
@@ -259,7 +292,7 @@ std::string rank_csv(const CubeReader& cube, const std::vector<RankGroup>& group
     for (const auto& e : g.entries)
       s += fmt::format(
           "{},{},{},{},{},{},{},\"{}\",{},{},{},{},{},{},{},{}\n", cube.models[g.model], cube.sides[g.side],
-          cube.levels[g.level], g.n_lo, g.n_hi, g.simulated ? "monte-carlo" : "exact", e.rank,
+          cube.levels[g.level], g.n_lo, g.n_hi, g.simulated || e.simulated ? "monte-carlo" : "exact", e.rank,
           cube.methods[e.method], e.eligible ? 1 : 0, csv_number(e.worst_coverage), e.worst_n,
           csv_number(e.mean_coverage), csv_number(e.rms_deviation), csv_number(e.mean_width),
           e.has_pair ? csv_number(e.pair_difference) : "", e.has_pair ? csv_number(e.pair_se) : "");

@@ -537,7 +537,8 @@ std::string Report::model_panel() const {
           for (const auto& r : rank_)
             if (r.model == mo && r.side == s && r.level == l && r.method == m) found = &r;
           any |= found != nullptr;
-          cells.emplace_back(found ? pct(found->worst_inf) : "–", found ? found->worst_inf : nan);
+          cells.emplace_back(found ? pct(found->worst_inf) + (found->simulated ? " (sim.)" : "") : "–",
+                             found ? found->worst_inf : nan);
           cells.emplace_back(found ? pct(found->mean_coverage) : "–", found ? found->mean_coverage : nan);
         }
         if (any) out += html_table_row(cells);
@@ -558,6 +559,27 @@ std::string Report::section(const Combo& c) const {
   }
   std::string out =
       fmt::format("<section class=\"combo\" id=\"{}\">\n<h2>{}</h2>\n", combo_id(c), escape(combo_title(c)));
+  // Methods with simulated figures only here (RankingRow::simulated) are
+  // not missing a side: they are named apart, and appear in the ranking.
+  std::vector<std::size_t> simulated_only;
+  for (const auto& r : rank_)
+    if (r.model == c.model && r.side == c.side && r.level == c.level && r.simulated)
+      simulated_only.push_back(r.method);
+  if (!simulated_only.empty()) {
+    std::string names;
+    for (std::size_t m : simulated_only) names += (names.empty() ? "" : ", ") + cube_.methods[m];
+    out += "<p class=\"note\">Simulated only: " + escape(names) +
+           (simulated_only.size() == 1 ? " needs" : " need") +
+           " each cluster's count, which the exact engine cannot sum over; " +
+           (simulated_only.size() == 1 ? "its" : "their") +
+           " Monte Carlo figures are in the ranking below and in the cube's /mc group.</p>\n";
+    absent.erase(std::remove_if(absent.begin(), absent.end(),
+                                [&](std::size_t m) {
+                                  return std::find(simulated_only.begin(), simulated_only.end(), m) !=
+                                         simulated_only.end();
+                                }),
+                 absent.end());
+  }
   if (!absent.empty()) {
     std::string names;
     for (std::size_t m : absent) names += (names.empty() ? "" : ", ") + cube_.methods[m];
@@ -591,7 +613,10 @@ std::string Report::section(const Combo& c) const {
   std::vector<RankingRow> rows;
   for (const auto& r : rank_)
     if (r.model == c.model && r.side == c.side && r.level == c.level) rows.push_back(r);
-  out += "<h3>Width against worst-case coverage</h3>\n" + tradeoff_figure(c, rows);
+  std::vector<RankingRow> same_basis;  // the figure compares exact worst cases only
+  for (const auto& r : rows)
+    if (!r.simulated) same_basis.push_back(r);
+  out += "<h3>Width against worst-case coverage</h3>\n" + tradeoff_figure(c, same_basis);
   out += "<h3>Summary at the drawn n</h3>\n" + summary_table(c, present);
   out += "<h3>Ranking over the whole n range</h3>\n" + ranking_table(c, rows);
   return out + "</section>\n";
@@ -1062,7 +1087,7 @@ std::string Report::ranking_table(const Combo& c, const std::vector<RankingRow>&
                      "RMS deviation (points)", "p below nominal %", "mean width"});
   for (const auto& r : rows)
     out += html_table_row({{std::to_string(r.rank), nan},
-                           {cube_.methods[r.method], nan},
+                           {cube_.methods[r.method] + (r.simulated ? " (simulated only)" : ""), nan},
                            {pct(r.worst_inf), r.worst_inf},
                            {engine::meets_coverage(r.worst_inf, level) ? "yes" : "no", nan},
                            {std::to_string(r.worst_inf_n), static_cast<double>(r.worst_inf_n)},
@@ -1072,7 +1097,7 @@ std::string Report::ranking_table(const Combo& c, const std::vector<RankingRow>&
                            {fixed(r.mean_width, 4), r.mean_width}});
   out += "</table>\n";
   // The same order and column meanings as the headline and `covergrid rank`.
-  return out + "<p>" + escape(ranking_footnote(exact_)) +
+  return out + "<p>" + escape(ranking_footnote(exact_, has_simulated_rows(rows))) +
          " \u201cMeets nominal\u201d: the worst case reaches the nominal level within 1e-10, the rule "
          "every command judges coverage by.</p>\n";
 }

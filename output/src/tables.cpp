@@ -14,6 +14,7 @@
 #include <filesystem>
 #include <fstream>
 #include <limits>
+#include <optional>
 
 namespace covergrid::output {
 
@@ -94,55 +95,91 @@ std::string pct(double v) {
   return fmt::format("{:.2f}", 100 * v);
 }
 
+/// The ranking row's trailing note: below nominal, simulated only.
+std::string row_note(const RankingRow& r) {
+  std::string note = r.meets_nominal ? "" : "below nominal";
+  if (r.simulated) note += note.empty() ? "simulated only" : ", simulated only";
+  return note;
+}
+
+}  // namespace
+
+namespace {
+
+/// The summary figures a ranking row reads: exact or simulated.
+struct RankingFigures {
+  std::vector<double> inf, cont, rms, below, width;
+  RankingFigures(const CubeReader& cube, bool exact)
+      : inf(cube.summary(exact ? "inf_coverage" : "mc_min_coverage")),
+        cont(cube.summary(exact ? "mean_coverage_continuous" : "mc_mean_coverage")),
+        rms(cube.summary(exact ? "rms_deviation" : "mc_rms_deviation")),
+        below(cube.summary(exact ? "share_below" : "mc_share_below")),
+        width(cube.summary(exact ? "mean_width" : "mc_mean_width")) {}
+};
+
+/// The row of (model, side, level, method) from `f`, or none when some n
+/// has no figure.
+std::optional<RankingRow> ranking_row(const CubeReader& cube, const RankingFigures& f, std::size_t mo,
+                                      std::size_t s, std::size_t l, std::size_t m) {
+  RankingRow r{mo, s, l, m};
+  r.worst_inf = std::numeric_limits<double>::infinity();
+  double k = 0;
+  for (std::size_t i = 0; i < cube.n.size(); ++i) {
+    const std::size_t at = cube.summary_index(mo, s, l, m, i);
+    if (std::isnan(f.inf[at])) return std::nullopt;
+    if (f.inf[at] < r.worst_inf) {
+      r.worst_inf = f.inf[at];
+      r.worst_inf_n = cube.n[i];
+    }
+    r.mean_coverage += f.cont[at];
+    r.rms_deviation += f.rms[at];
+    r.share_below += f.below[at];
+    r.mean_width += f.width[at];
+    ++k;
+  }
+  if (k == 0) return std::nullopt;
+  r.mean_coverage /= k;
+  r.rms_deviation /= k;
+  r.share_below /= k;
+  r.mean_width /= k;
+  r.meets_nominal = engine::meets_coverage(r.worst_inf, cube.levels[l]);
+  return r;
+}
+
+void rank_group(std::vector<RankingRow>& group) {
+  std::stable_sort(group.begin(), group.end(), [](const RankingRow& a, const RankingRow& b) {
+    return ranks_before(RankCriterion::shortest,
+                        {a.meets_nominal, a.worst_inf, a.mean_width, a.rms_deviation},
+                        {b.meets_nominal, b.worst_inf, b.mean_width, b.rms_deviation});
+  });
+}
+
 }  // namespace
 
 std::vector<RankingRow> ranking(const CubeReader& cube) {
   // Exact figures where the cube has them; otherwise the simulated grid ones.
   const bool ex = cube.has_exact();
-  const auto inf = cube.summary(ex ? "inf_coverage" : "mc_min_coverage");
-  const auto cont = cube.summary(ex ? "mean_coverage_continuous" : "mc_mean_coverage");
-  const auto rms = cube.summary(ex ? "rms_deviation" : "mc_rms_deviation");
-  const auto below = cube.summary(ex ? "share_below" : "mc_share_below");
-  const auto width = cube.summary(ex ? "mean_width" : "mc_mean_width");
+  const RankingFigures figures(cube, ex);
+  std::optional<RankingFigures> simulated;
+  if (ex && cube.has_mc()) simulated.emplace(cube, false);
   std::vector<RankingRow> out;
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
       for (std::size_t l = 0; l < cube.levels.size(); ++l) {
-        std::vector<RankingRow> group;
+        std::vector<RankingRow> group, only_simulated;
         for (std::size_t m = 0; m < cube.methods.size(); ++m) {
-          RankingRow r{mo, s, l, m};
-          r.worst_inf = std::numeric_limits<double>::infinity();
-          double k = 0;
-          bool defined = true;
-          for (std::size_t i = 0; i < cube.n.size(); ++i) {
-            const std::size_t at = cube.summary_index(mo, s, l, m, i);
-            if (std::isnan(inf[at])) {
-              defined = false;
-              break;
+          if (auto r = ranking_row(cube, figures, mo, s, l, m)) {
+            group.push_back(*r);
+          } else if (simulated) {
+            if (auto q = ranking_row(cube, *simulated, mo, s, l, m)) {
+              q->simulated = true;
+              only_simulated.push_back(*q);
             }
-            if (inf[at] < r.worst_inf) {
-              r.worst_inf = inf[at];
-              r.worst_inf_n = cube.n[i];
-            }
-            r.mean_coverage += cont[at];
-            r.rms_deviation += rms[at];
-            r.share_below += below[at];
-            r.mean_width += width[at];
-            ++k;
           }
-          if (!defined || k == 0) continue;
-          r.mean_coverage /= k;
-          r.rms_deviation /= k;
-          r.share_below /= k;
-          r.mean_width /= k;
-          r.meets_nominal = engine::meets_coverage(r.worst_inf, cube.levels[l]);
-          group.push_back(r);
         }
-        std::stable_sort(group.begin(), group.end(), [](const RankingRow& a, const RankingRow& b) {
-          return ranks_before(RankCriterion::shortest,
-                              {a.meets_nominal, a.worst_inf, a.mean_width, a.rms_deviation},
-                              {b.meets_nominal, b.worst_inf, b.mean_width, b.rms_deviation});
-        });
+        rank_group(group);
+        rank_group(only_simulated);
+        group.insert(group.end(), only_simulated.begin(), only_simulated.end());
         for (std::size_t i = 0; i < group.size(); ++i) group[i].rank = static_cast<int>(i) + 1;
         out.insert(out.end(), group.begin(), group.end());
       }
@@ -170,7 +207,11 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
       stats.push_back(std::string("mc_") + name);
   std::vector<std::vector<double>> values;
   for (const auto& name : stats) values.push_back(cube.summary(name));
-  const std::size_t defined = 1;  // min_coverage (or mc_min_coverage): NaN where a method lacks the side
+  // A row where the method has figures: its side defined, and exact cells
+  // unless it needs the cluster counts (then simulated ones only).
+  std::vector<std::size_t> defined;
+  for (std::size_t k = 0; k < stats.size(); ++k)
+    if (stats[k] == "min_coverage" || stats[k] == "mc_min_coverage") defined.push_back(k);
 
   std::string csv = "model,side,level,method,n";
   for (const auto& name : stats) csv += "," + name;
@@ -181,7 +222,9 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
         for (std::size_t m = 0; m < cube.methods.size(); ++m)
           for (std::size_t i = 0; i < cube.n.size(); ++i) {
             const std::size_t at = cube.summary_index(mo, s, l, m, i);
-            if (std::isnan(values[defined][at])) continue;  // side not defined by the method
+            if (std::all_of(defined.begin(), defined.end(),
+                            [&](std::size_t k) { return std::isnan(values[k][at]); }))
+              continue;  // side not defined by the method
             csv += fmt::format("{},{},{},\"{}\",{}", cube.models[mo], cube.sides[s], cube.levels[l],
                                cube.methods[m], cube.n[i]);
             for (const auto& v : values) {
@@ -194,12 +237,13 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
   const auto rank = ranking(cube);
   std::string rcsv =
       "model,side,level,rank,method,worst_inf_coverage,worst_at_n,mean_coverage_continuous,"
-      "mean_rms_deviation,mean_share_below,mean_width\n";
+      "mean_rms_deviation,mean_share_below,mean_width,basis\n";
   for (const auto& r : rank)
-    rcsv += fmt::format("{},{},{},{},\"{}\",{},{},{},{},{},{}\n", cube.models[r.model], cube.sides[r.side],
+    rcsv += fmt::format("{},{},{},{},\"{}\",{},{},{},{},{},{},{}\n", cube.models[r.model], cube.sides[r.side],
                         csv_number(cube.levels[r.level]), r.rank, cube.methods[r.method],
                         csv_number(r.worst_inf), r.worst_inf_n, csv_number(r.mean_coverage),
-                        csv_number(r.rms_deviation), csv_number(r.share_below), csv_number(r.mean_width));
+                        csv_number(r.rms_deviation), csv_number(r.share_below), csv_number(r.mean_width),
+                        cube.has_exact() && !r.simulated ? "exact" : "simulated");
 
   std::string md =
       fmt::format("# {}\n\n", cube.attr("title").empty() ? "covergrid results" : cube.attr("title"));
@@ -213,7 +257,8 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
           ? "Coverage figures are exact (binomial enumeration)."
           : "Coverage figures are Monte Carlo estimates (see the cube's /mc group for standard errors).");
   md += std::string("> ") + coverage_caution + "\n\n";
-  md += "## Standing of the methods over the whole n range\n\n" + ranking_footnote(cube.has_exact()) + "\n";
+  md += "## Standing of the methods over the whole n range\n\n" +
+        ranking_footnote(cube.has_exact(), has_simulated_rows(rank)) + "\n";
   for (std::size_t mo = 0; mo < cube.models.size(); ++mo)
     for (std::size_t s = 0; s < cube.sides.size(); ++s)
       for (std::size_t l = 0; l < cube.levels.size(); ++l) {
@@ -227,8 +272,7 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
           if (r.model == mo && r.side == s && r.level == l)
             md += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {:.4f} | {} |\n", r.rank,
                               cube.methods[r.method], pct(r.worst_inf), r.worst_inf_n, pct(r.mean_coverage),
-                              pct(r.rms_deviation), pct(r.share_below), r.mean_width,
-                              r.meets_nominal ? "" : "below nominal");
+                              pct(r.rms_deviation), pct(r.share_below), r.mean_width, row_note(r));
       }
   md += "\nPer-n figures are in the CSV summary beside this file.\n";
 
@@ -239,7 +283,11 @@ std::vector<std::string> write_tables(const CubeReader& cube, const std::string&
   return paths;
 }
 
-std::string ranking_footnote(bool exact) {
+bool has_simulated_rows(const std::vector<RankingRow>& rows) {
+  return std::any_of(rows.begin(), rows.end(), [](const RankingRow& r) { return r.simulated; });
+}
+
+std::string ranking_footnote(bool exact, bool simulated_rows) {
   std::string s = std::string(ranking_order_text) + " Columns: # = rank in that order; ";
   if (exact)
     s += "worst % = smallest exact infimum of coverage over the continuous p range, at any n; at n = the n "
@@ -251,6 +299,12 @@ std::string ranking_footnote(bool exact) {
        "over n; below % = share of the grid's p where coverage is below nominal, averaged over n; width = "
        "expected interval width (clipped to [0, 1]), averaged over the grid's p and n; \"below nominal\" "
        "marks a method whose worst coverage falls below nominal.";
+  if (exact && simulated_rows)
+    s +=
+        " \"Simulated only\" marks a method with no exact figures (a design-effect method in clustered "
+        "samples needs each cluster's count, which only simulation draws): such methods follow the others, "
+        "ranked among themselves on their Monte Carlo figures, worst % being the smallest simulated coverage "
+        "on the p grid.";
   return s;
 }
 
@@ -272,10 +326,10 @@ std::string headline(const CubeReader& cube) {
             out += fmt::format("  {:>2}  {:<{}}  {:>9}  {:>6}  {:>9}  {:>8}  {:>8}  {:>9.4f}{}\n", r.rank,
                                cube.methods[r.method], width, pct(r.worst_inf), r.worst_inf_n,
                                pct(r.mean_coverage), pct(r.rms_deviation), pct(r.share_below), r.mean_width,
-                               r.meets_nominal ? "" : "  below nominal");
+                               row_note(r).empty() ? "" : "  " + row_note(r));
       }
   out += '\n';
-  out += wrap_text(ranking_footnote(cube.has_exact()), 100);
+  out += wrap_text(ranking_footnote(cube.has_exact(), has_simulated_rows(rank)), 100);
   out += '\n';
   out += wrap_text(coverage_caution, 100);
   return out;

@@ -246,6 +246,10 @@ std::vector<engine::Claim> load_claims_text(std::string_view text, const std::st
     if (c.replicates == 0 && (t.get("p_points") || t.get("confidence")))
       ctx.fail(t.get("p_points") ? t.get("p_points") : t.get("confidence"),
                "[[claim]] p_points and confidence go with replicates > 0 (a simulated claim)");
+    if (c.replicates == 0 && methods::under_design(c.method.method, c.model->design())->needs_clusters())
+      ctx.fail(m, fmt::format("[[claim]] {} needs each cluster's count under the model {}, which only "
+                              "simulation draws: give the claim replicates (e.g. 20000)",
+                              c.method.label, c.model->label()));
     claims.push_back(std::move(c));
   }
   if (claims.empty()) ctx.fail(list, "no [[claim]] entries");

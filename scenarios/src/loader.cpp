@@ -361,10 +361,12 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
   if (!m_node) ctx.fail(nullptr, "no [[method]] entries: name at least one interval method");
   if (!m_node->is_array_of_tables()) ctx.fail(m_node, "method must be an array of tables, [[method]]");
   std::set<std::string> labels;
+  std::vector<const toml::node*> id_nodes;
   for (const auto& item : *m_node->as_array()) {
     const auto& t = *item.as_table();
     const toml::node* id_node = t.get("id");
     if (!id_node) ctx.fail(&item, "[[method]] needs 'id'");
+    id_nodes.push_back(id_node);
     const std::string id = string_of(ctx, *id_node, "[[method]] id");
     const methods::MethodEntry* entry = methods::find_method(id);
     if (!entry) {
@@ -407,6 +409,16 @@ engine::Scenario load_scenario_text(std::string_view text, const std::string& so
 
   // [[model]] (models.cpp)
   s.models = read_models(ctx, root, s.n);
+  // A method that needs the cluster counts under a model (design-effect
+  // methods in clustered samples) is evaluated by Monte Carlo only.
+  if (s.replicates == 0)
+    for (std::size_t i = 0; i < s.methods.size(); ++i)
+      for (const auto& model : s.models)
+        if (methods::under_design(s.methods[i].method, model.model->design())->needs_clusters())
+          ctx.fail(id_nodes[i],
+                   fmt::format("[[method]] {} needs each cluster's count under the model {}, which only "
+                               "simulation draws: give [evaluate] replicates (e.g. 20000)",
+                               s.methods[i].label, model.label));
   // The grid's size, refused before anything is planned or allocated.
   const double cells = static_cast<double>(s.n.size()) * static_cast<double>(s.p.size()) *
                        static_cast<double>(s.models.size());

@@ -24,6 +24,19 @@ inline CliResult call(const std::vector<std::string>& args) {
   return {status, out.str(), err.str()};
 }
 
+/// The lines of a text, without their line ends.
+inline std::vector<std::string> split_lines(const std::string& text) {
+  std::vector<std::string> out;
+  std::size_t start = 0;
+  while (start < text.size()) {
+    const auto end = text.find('\n', start);
+    out.push_back(text.substr(start, end - start));
+    if (end == std::string::npos) break;
+    start = end + 1;
+  }
+  return out;
+}
+
 /// The fields of one CSV line ("..." quoting, no embedded newlines).
 inline std::vector<std::string> split_csv_line(const std::string& line) {
   std::vector<std::string> fields;

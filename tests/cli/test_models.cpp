@@ -56,18 +56,6 @@ cube = "m.h5"
 tables = "m"
 )";
 
-std::vector<std::string> split_lines(const std::string& text) {
-  std::vector<std::string> out;
-  std::size_t start = 0;
-  while (start < text.size()) {
-    const auto end = text.find('\n', start);
-    out.push_back(text.substr(start, end - start));
-    if (end == std::string::npos) break;
-    start = end + 1;
-  }
-  return out;
-}
-
 }  // namespace
 
 TEST_CASE("a finite-population model runs exactly and by simulation, and the cube records it",

@@ -74,6 +74,11 @@ engine::Claim claim_from_options(const AuditArgs& a, const CLI::App& app) {
     throw InputError("--replicates", fmt::format("{} is above the largest supported count per cell ({})",
                                                  a.replicates, scenarios::max_replicates_per_cell));
   c.replicates = static_cast<std::uint64_t>(a.replicates);
+  if (c.replicates == 0 && methods::under_design(c.method.method, c.model->design())->needs_clusters())
+    throw InputError("--method " + a.method,
+                     fmt::format("{} needs each cluster's count under the model {}, which only simulation "
+                                 "draws: give --replicates (e.g. 20000)",
+                                 c.method.label, c.model->label()));
   if (a.p_points < 2 || static_cast<std::size_t>(a.p_points) > scenarios::max_claim_p_points)
     throw InputError("--p-points",
                      fmt::format("{} is outside 2..{}", a.p_points, scenarios::max_claim_p_points));

@@ -6,8 +6,10 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <charconv>
 #include <cmath>
 #include <memory>
+#include <optional>
 
 namespace covergrid::cli {
 
@@ -76,9 +78,47 @@ std::string group_heading(Group g, double level) {
   return "";
 }
 
+/// The cluster counts of --clusters "y1,y2,...": m clusters of k = n / m,
+/// each count in 0..k, summing to x.
+methods::ClusterCounts parse_clusters(const std::string& text, int x, int n) {
+  std::vector<long long> y;
+  std::size_t at = 0;
+  while (at <= text.size()) {
+    const std::size_t comma = std::min(text.find(',', at), text.size());
+    const std::string item = text.substr(at, comma - at);
+    long long v = -1;
+    const auto [end, ec] = std::from_chars(item.data(), item.data() + item.size(), v);
+    if (item.empty() || ec != std::errc() || end != item.data() + item.size() || v < 0)
+      throw InputError("--clusters",
+                       fmt::format("\"{}\" is not a count (a whole number from 0); give each cluster's "
+                                   "successes, e.g. --clusters 2,0,5,1",
+                                   item));
+    y.push_back(v);
+    at = comma + 1;
+  }
+  const auto m = static_cast<long long>(y.size());
+  if (n % m != 0)
+    throw InputError("--clusters",
+                     fmt::format("{} clusters cannot share N = {} equally (clusters of one size)", m, n));
+  const long long k = n / m;
+  long long sum = 0;
+  double squares = 0;
+  for (std::size_t i = 0; i < y.size(); ++i) {
+    if (y[i] > k)
+      throw InputError("--clusters",
+                       fmt::format("cluster {} has {} successes, more than its {} units (N / {} "
+                                   "clusters)",
+                                   i + 1, y[i], k, m));
+    sum += y[i];
+    squares += static_cast<double>(y[i] * y[i]);
+  }
+  if (sum != x) throw InputError("--clusters", fmt::format("the counts sum to {}, not to X = {}", sum, x));
+  return {static_cast<int>(m), static_cast<int>(k), squares};
+}
+
 int cmd_intervals(int x, int n, double level, const std::string& side_text,
-                  const std::vector<std::string>& method_texts, const std::string& model_text, bool csv,
-                  std::ostream& out) {
+                  const std::vector<std::string>& method_texts, const std::string& model_text,
+                  const std::string& clusters_text, bool csv, std::ostream& out) {
   if (n < 1) throw InputError("N", fmt::format("N = {} must be at least 1", n));
   if (x < 0 || x > n) throw InputError("X", fmt::format("X = {} must lie in 0..N = 0..{}", x, n));
   check_level(level, "--level");
@@ -103,23 +143,50 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
         throw InputError("--method " + t, why);
     }
   }
-  // Under a sampling model (a finite population), the design-aware methods
-  // (finite-population corrections, the exact hypergeometric interval) take
-  // its population; the others are unchanged.
+  // Under a sampling model (a finite population, clusters), the
+  // design-aware methods (finite-population corrections, the exact
+  // hypergeometric interval, the design-effect forms) take its design; the
+  // others are unchanged. Design-effect methods in clusters of more than one
+  // unit need each cluster's count (--clusters).
   std::string drawn_from;
+  methods::Design design;
   if (!model_text.empty()) {
     const auto model = parse_model_option(model_text);
     const std::vector<int> ns = {n};
     if (const std::string why = engine::refused_n(*model, ns); !why.empty())
       throw InputError("--model " + model_text, why);
-    for (auto& m : list) m.method = methods::under_design(m.method, model->design());
+    design = model->design();
     drawn_from = model->label();
   }
+  std::optional<methods::ClusterCounts> clusters;
+  std::string in_clusters;
+  if (!clusters_text.empty()) {
+    clusters = parse_clusters(clusters_text, x, n);
+    if (!model_text.empty() && design.cluster_size != clusters->cluster_size)
+      throw InputError(
+          "--clusters",
+          fmt::format("{} clusters of {} do not match the model {} (clusters of {})", clusters->clusters,
+                      clusters->cluster_size, drawn_from, design.cluster_size));
+    design.cluster_size = clusters->cluster_size;
+    in_clusters = fmt::format(", in {} clusters of {}", clusters->clusters, clusters->cluster_size);
+  }
+  for (auto& m : list) m.method = methods::under_design(m.method, design);
+  // The limits, or none for a method that needs cluster counts not given.
+  auto limits_of = [&](const methods::IntervalMethod& method) -> std::optional<methods::Limits> {
+    if (!method.needs_clusters()) return methods::interval(method, x, n, level, side);
+    if (!clusters) return std::nullopt;
+    return methods::clustered_interval(method, x, *clusters, level, side);
+  };
   if (csv) {
     out << "method,x,n,level,side,lower,upper,raw_lower,raw_upper\n";
     for (const auto& m : list) {
       if (!m.method->supports(side)) continue;
-      const auto lim = methods::interval(*m.method, x, n, level, side);
+      const auto found = limits_of(*m.method);
+      if (!found) {  // needs the cluster counts: a row without limits
+        out << fmt::format("\"{}\",{},{},{},{},,,,\n", m.label, x, n, output::csv_number(level), side_text);
+        continue;
+      }
+      const auto lim = *found;
       out << fmt::format("\"{}\",{},{},{},{},{},{},{},{}\n", m.label, x, n, output::csv_number(level),
                          side_text, output::csv_number(lim.lower), output::csv_number(lim.upper),
                          output::csv_number(lim.raw_lower), output::csv_number(lim.raw_upper));
@@ -131,7 +198,7 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
   for (const auto& m : list) width = std::max(width, m.label.size());
   out << fmt::format("{} success{} in {} trial{}, observed share {:.4f}: {} intervals at {:g} %{}\n", x,
                      x == 1 ? "" : "es", n, n == 1 ? "" : "s", share, side_text, 100 * level,
-                     drawn_from.empty() ? std::string() : ", drawn under " + drawn_from);
+                     (drawn_from.empty() ? std::string() : ", drawn under " + drawn_from) + in_clusters);
   for (Group g : {Group::guaranteed, Group::approximate, Group::bayesian, Group::unknown}) {
     std::string block;
     for (const auto& m : list) {
@@ -140,7 +207,13 @@ int cmd_intervals(int x, int n, double level, const std::string& side_text,
         block += fmt::format("  {:<{}}  defines only the two-sided interval\n", m.label, width);
         continue;
       }
-      const auto lim = methods::interval(*m.method, x, n, level, side);
+      const auto found = limits_of(*m.method);
+      if (!found) {
+        block +=
+            fmt::format("  {:<{}}  needs each cluster's count: give --clusters y1,y2,...\n", m.label, width);
+        continue;
+      }
+      const auto lim = *found;
       const std::string note = notes(lim);
       block += fmt::format("  {:<{}}  {}  {}  {}  {}{}\n", m.label, width, fmt_limit(lim.lower),
                            fmt_limit(lim.upper), fmt_limit(lim.upper - lim.lower),
@@ -178,6 +251,7 @@ struct IntervalsArgs {
   std::string side = "two-sided";
   std::vector<std::string> methods;
   std::string model;
+  std::string clusters;
   bool csv = false;
 };
 
@@ -196,13 +270,18 @@ Command add_intervals_command(CLI::App& app) {
   intervals->add_option("--model", a->model,
                         "how the sample was drawn, e.g. hypergeometric:population=500 (a finite population: "
                         "fpc-wald, fpc-wilson and exact-hypergeometric use N; default binomial)");
+  intervals->add_option(
+      "--clusters", a->clusters,
+      "the successes in each of m equal clusters (N = m k), e.g. 2,0,5,1: the design-effect "
+      "methods estimate the design effect from them");
   intervals->add_flag("--csv", a->csv, "CSV output with raw (unclipped) limits");
   intervals->footer(
       "Methods are grouped by what they promise: guaranteed coverage (exact tail inversion), "
       "approximate, Bayesian. Each row draws the interval on [0, 1] against the observed share.\n\n" +
       output::wrap_text(output::coverage_caution, 100));
   return {intervals, [a](std::ostream& out, std::ostream&) {
-            return cmd_intervals(a->x, a->n, a->level, a->side, a->methods, a->model, a->csv, out);
+            return cmd_intervals(a->x, a->n, a->level, a->side, a->methods, a->model, a->clusters, a->csv,
+                                 out);
           }};
 }
 

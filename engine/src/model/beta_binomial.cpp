@@ -27,7 +27,9 @@
 //
 // Methods that use only (x, n) are evaluated exactly and by Monte Carlo (the
 // sampler inverts this window). Design-effect methods, which need the
-// cluster counts, are not available yet.
+// cluster counts, are evaluated by Monte Carlo only: each replicate's x is
+// drawn from this window as for every method, and its cluster counts then
+// conditionally on x (BetaBinomialClusters below).
 #include "covergrid/engine/sampling_model.hpp"
 
 #include <fmt/format.h>
@@ -39,6 +41,58 @@
 
 namespace covergrid::engine {
 namespace {
+
+/// The law of a sum of cluster counts: w[i] = P(sum = lo + i).
+struct Partial {
+  int lo = 0;
+  std::vector<double> w;
+};
+
+/// Drops the ends of `g` while each end's dropped mass stays within
+/// `per_end`, shifting `lo` by what goes from the front.
+void trim(std::vector<double>& g, int& lo, double per_end, double& dropped) {
+  double front = 0;
+  std::size_t first = 0;
+  while (first + 1 < g.size() && front + g[first] <= per_end) front += g[first++];
+  double back = 0;
+  std::size_t last = g.size();
+  while (last > first + 1 && back + g[last - 1] <= per_end) back += g[--last];
+  if (first > 0 || last < g.size()) {
+    g = std::vector<double>(g.begin() + static_cast<std::ptrdiff_t>(first),
+                            g.begin() + static_cast<std::ptrdiff_t>(last));
+    lo += static_cast<int>(first);
+    dropped += front + back;
+  }
+}
+
+/// The laws of the sums of the first 1, 2, .., m cluster counts, each the
+/// previous one convolved with the cluster law and trimmed (all of them when
+/// `keep_all`, else only X's, the last); returns the mass dropped in all.
+/// The window and the cluster sampler both call it with the model's m, so
+/// they trim alike.
+double convolve(const std::vector<double>& cluster, int m, std::vector<Partial>& sums, bool keep_all) {
+  const double per_end = 5e-17 / m;
+  double dropped = 0;
+  sums.assign(1, Partial{0, cluster});
+  trim(sums.back().w, sums.back().lo, per_end, dropped);
+  std::vector<double> next;
+  for (int j = 1; j < m; ++j) {
+    const Partial& g = sums.back();
+    next.assign(g.w.size() + cluster.size() - 1, 0.0);
+    for (std::size_t a = 0; a < g.w.size(); ++a) {
+      const double ga = g.w[a];
+      if (ga == 0.0) continue;
+      for (std::size_t b = 0; b < cluster.size(); ++b) next[a + b] += ga * cluster[b];
+    }
+    Partial sum{g.lo, next};
+    trim(sum.w, sum.lo, per_end, dropped);
+    if (keep_all)
+      sums.push_back(std::move(sum));
+    else
+      sums.back() = std::move(sum);
+  }
+  return dropped;
+}
 
 class BetaBinomial final : public SamplingModel {
  public:
@@ -81,29 +135,15 @@ class BetaBinomial final : public SamplingModel {
       out.sum_up();
       return;
     }
-    const std::vector<double> cluster = cluster_law(p);
-    const int m = n / k_;
-    const double per_end = 5e-17 / m;
-    std::vector<double> g = cluster, next;
-    int lo = 0;
-    double dropped = 0;
-    trim(g, lo, per_end, dropped);
-    for (int j = 1; j < m; ++j) {
-      next.assign(g.size() + cluster.size() - 1, 0.0);
-      for (std::size_t a = 0; a < g.size(); ++a) {
-        const double ga = g[a];
-        if (ga == 0.0) continue;
-        for (std::size_t b = 0; b < cluster.size(); ++b) next[a + b] += ga * cluster[b];
-      }
-      g.swap(next);
-      trim(g, lo, per_end, dropped);
-    }
-    out.lo = lo;
-    out.hi = lo + static_cast<int>(g.size()) - 1;
-    out.w = g;
-    out.tail_bound = dropped;
+    std::vector<Partial> sums;
+    out.tail_bound = convolve(cluster_law(p), n / k_, sums, false);
+    out.lo = sums.back().lo;
+    out.hi = out.lo + static_cast<int>(sums.back().w.size()) - 1;
+    out.w = std::move(sums.back().w);
     out.sum_up();
   }
+
+  std::unique_ptr<ClusterSampler> cluster_sampler(int n, double p) const override;
 
  private:
   /// P(Y = y), y = 0..k, for one cluster at mean p (0 < p < 1).
@@ -121,23 +161,6 @@ class BetaBinomial final : public SamplingModel {
     for (std::size_t i = 0; i < f.size(); ++i) sum += (f[i] = std::exp(logf[i] - top));
     for (double& v : f) v /= sum;
     return f;
-  }
-
-  /// Drops the ends of `g` while each end's dropped mass stays within
-  /// `per_end`, shifting `lo` by what goes from the front.
-  static void trim(std::vector<double>& g, int& lo, double per_end, double& dropped) {
-    double front = 0;
-    std::size_t first = 0;
-    while (first + 1 < g.size() && front + g[first] <= per_end) front += g[first++];
-    double back = 0;
-    std::size_t last = g.size();
-    while (last > first + 1 && back + g[last - 1] <= per_end) back += g[--last];
-    if (first > 0 || last < g.size()) {
-      g = std::vector<double>(g.begin() + static_cast<std::ptrdiff_t>(first),
-                              g.begin() + static_cast<std::ptrdiff_t>(last));
-      lo += static_cast<int>(first);
-      dropped += front + back;
-    }
   }
 
   /// The last window computed on this thread (the worst case and the
@@ -161,6 +184,68 @@ class BetaBinomial final : public SamplingModel {
   int k_;
   double rho_;
 };
+
+/// Cluster counts given X = x, drawn backwards: the last cluster's count y
+/// has P(y | the m clusters sum to x) proportional to f(y) g_{m-1}(x - y),
+/// with f the cluster law and g_{m-1} the law of the first m - 1 clusters'
+/// sum; then the same for m - 1 clusters summing to x - y, down to the
+/// first, which takes what remains. The laws are the window's own trimmed
+/// convolutions, so every x the window can draw has a positive weight at
+/// every step (each entry of g_r is a sum of exactly these products). Cost:
+/// about n multiplications per replicate.
+class BetaBinomialClusters final : public ClusterSampler {
+ public:
+  BetaBinomialClusters(int m, int k, double p, std::vector<double> f, std::vector<Partial> sums)
+      : m_(m), k_(k), p_(p), f_(std::move(f)), sums_(std::move(sums)) {}
+  int clusters() const override { return m_; }
+  int cluster_size() const override { return k_; }
+  std::int64_t sum_squares(int x, const double* u) const override {
+    if (p_ <= 0.0 || p_ >= 1.0) return static_cast<std::int64_t>(x) * k_;  // every cluster 0 or every one k
+    std::int64_t s = 0;
+    int rest = x;
+    for (int r = m_ - 1; r >= 1; --r) {
+      const Partial& g = sums_[static_cast<std::size_t>(r) - 1];
+      const int g_hi = g.lo + static_cast<int>(g.w.size()) - 1;
+      const int y_lo = std::max(0, rest - g_hi), y_hi = std::min(k_, rest - g.lo);
+      double total = 0;
+      for (int y = y_lo; y <= y_hi; ++y) total += weight(g, y, rest);
+      const double target = u[m_ - 1 - r] * total;
+      int pick = y_hi;  // reached only by rounding in the last step's sum
+      double run = 0;
+      for (int y = y_lo; y <= y_hi; ++y) {
+        const double w = weight(g, y, rest);
+        run += w;
+        if (w > 0 && target < run) {
+          pick = y;
+          break;
+        }
+      }
+      s += static_cast<std::int64_t>(pick) * pick;
+      rest -= pick;
+    }
+    return s + static_cast<std::int64_t>(rest) * rest;
+  }
+
+ private:
+  double weight(const Partial& g, int y, int rest) const {
+    return f_[static_cast<std::size_t>(y)] * g.w[static_cast<std::size_t>(rest - y - g.lo)];
+  }
+  int m_, k_;
+  double p_;
+  std::vector<double> f_;
+  std::vector<Partial> sums_;
+};
+
+std::unique_ptr<ClusterSampler> BetaBinomial::cluster_sampler(int n, double p) const {
+  const int m = n / k_;
+  if (k_ <= 1 || n % k_ != 0) return nullptr;
+  if (p <= 0.0 || p >= 1.0)
+    return std::make_unique<BetaBinomialClusters>(m, k_, p, std::vector<double>{}, std::vector<Partial>{});
+  std::vector<double> f = cluster_law(p);
+  std::vector<Partial> sums;
+  convolve(f, m, sums, true);  // g_1 .. g_m, trimmed as the window trims; g_m unused
+  return std::make_unique<BetaBinomialClusters>(m, k_, p, std::move(f), std::move(sums));
+}
 
 }  // namespace
 

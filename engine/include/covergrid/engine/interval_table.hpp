@@ -5,6 +5,8 @@
 /// (design principle 2).
 #include "covergrid/methods/interval.hpp"
 
+#include <memory>
+#include <string>
 #include <string_view>
 #include <vector>
 
@@ -21,7 +23,20 @@ struct IntervalTable {
   std::vector<int> degenerate_x;   // the x where degenerate is 1 (usually few)
   std::vector<int> overshoot_x;    // the x where overshoot is 1
   bool monotone = false;           // lower and upper both non-decreasing in x
+  /// Set for a method that needs the cluster counts under the model's design
+  /// (methods::IntervalMethod::needs_clusters): x alone gives no limits, so
+  /// the table has none and `supported` is false for the exact engine (its
+  /// cells are NaN); Monte Carlo computes this method's limits for each drawn
+  /// sample (engine/src/monte_carlo.cpp) at `level` and `side`.
+  std::shared_ptr<const methods::IntervalMethod> clustered;
+  double level = 0;
+  methods::Side side = methods::Side::two_sided;
+  std::string label;
 };
+
+/// methods::clustered_interval with a failure named as named_interval does,
+/// the sum of squared cluster counts included.
+methods::Limits named_clustered_interval(const IntervalTable& table, int x, const methods::ClusterCounts& c);
 
 /// methods::interval, with a numerical failure turned into a
 /// methods::NumericalError naming x, n, level, side and (when given) the

@@ -12,6 +12,9 @@
 
 #include <array>
 #include <cstdint>
+#include <map>
+#include <memory>
+#include <utility>
 #include <string_view>
 #include <vector>
 
@@ -30,21 +33,34 @@ struct ReplicateRule {
   std::uint64_t max_replicates = 0;  // cap when target_se > 0
 };
 
-/// The draws of one cell as counts over the window's x.
+/// The draws of one cell as counts over the window's x and, when the cell's
+/// cluster counts were drawn, counts over (x, sum of squared cluster counts).
 struct CellDraws {
   std::vector<std::uint64_t> counts;  // counts[x - window.lo]
   std::uint64_t replicates = 0;
+  std::map<std::pair<int, std::int64_t>, std::uint64_t> samples;  // empty unless clusters were drawn
+  int clusters = 0, cluster_size = 1;
 };
+
+/// The model's cluster sampler at (n, p) when some table needs the cluster
+/// counts (IntervalTable::clustered), else nullptr.
+std::unique_ptr<ClusterSampler> cluster_sampler_for(const SamplingModel& model, int n, double p,
+                                                    const std::vector<const IntervalTable*>& tables);
 
 /// Draws replicates [0, rule.replicates) (and, with a target standard error,
 /// further rounds doubling the count until every table's estimated standard
 /// error is at most the target or the cap is reached) into `draws`.
+/// With a cluster sampler, each replicate's cluster counts are drawn too,
+/// given its x, from the stream's detail uniforms (CellStream::detail_uniforms),
+/// and tallied by (x, sum of squares); the x draws are the same either way.
 /// The stopping rule uses (k + 1)/(R + 2) for each coverage so that a run of
 /// all-covered replicates does not stop it at a spurious zero error.
 void simulate_cell(const ProbabilityWindow& window, const CellStream& stream, const ReplicateRule& rule,
-                   const std::vector<const IntervalTable*>& tables, double p, CellDraws& draws);
+                   const std::vector<const IntervalTable*>& tables, double p, CellDraws& draws,
+                   const ClusterSampler* clusters = nullptr);
 
-/// Every metric of a table from the draws. NaN for an unsupported table.
+/// Every metric of a table from the draws. NaN for an unsupported table and
+/// for a table that needs cluster counts the draws do not have.
 McMetrics mc_metrics(const IntervalTable& table, const ProbabilityWindow& window, const CellDraws& draws,
                      double p);
 
@@ -67,5 +83,6 @@ struct PairedCell {
 PairedCell paired_difference(std::uint64_t seed, std::size_t model, int n, std::size_t p_index, double p,
                              std::uint64_t replicates, const IntervalTable& a, const IntervalTable& b,
                              const SamplingModel& sampling = binomial_model());
+// (Either table may need the cluster counts: the cell's clusters are then drawn.)
 
 }  // namespace covergrid::engine

@@ -21,6 +21,14 @@ class CellStream {
   /// Uniforms in [0, 1) (52 bits) for replicates first .. first + count - 1;
   /// replicate r is half r % 2 of the Philox block r / 2, whatever `first` is.
   void uniforms(std::uint64_t first, std::size_t count, double* out) const;
+  /// Uniforms for what replicate `replicate` draws beyond its x (a
+  /// clustered sample's cluster counts): `count` (< 2^23) uniforms from
+  /// Philox block 2^36 + replicate * 2^22 onward. These blocks are disjoint
+  /// from the replicates' own (below 2^33 for the 10^10 replicates a cell
+  /// may have) and from every other replicate's.
+  void detail_uniforms(std::uint64_t replicate, std::size_t count, double* out) const {
+    uniforms((std::uint64_t{1} << 37) + replicate * (std::uint64_t{1} << 23), count, out);
+  }
   /// Word `word` (0..3) of the batched generator's output for Philox block
   /// `block`: the tests hold it equal to Random123's philox4x32.
   std::uint32_t raw_word(std::uint64_t block, int word) const;

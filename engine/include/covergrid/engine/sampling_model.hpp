@@ -10,6 +10,7 @@
 #include "covergrid/engine/probability_window.hpp"
 #include "covergrid/methods/interval.hpp"
 
+#include <cstdint>
 #include <functional>
 #include <memory>
 #include <optional>
@@ -19,6 +20,23 @@
 #include <vector>
 
 namespace covergrid::engine {
+
+/// Draws a clustered sample's cluster counts given its total x: what
+/// design-effect methods read beyond x (methods::ClusterCounts). Drawn
+/// conditionally on x, so each replicate's x, and every x-only method's
+/// result, is the same whether the clusters are drawn or not, and the
+/// methods stay paired on common draws.
+class ClusterSampler {
+ public:
+  virtual ~ClusterSampler() = default;
+  /// m, the number of clusters; sum_squares() reads m - 1 uniforms.
+  virtual int clusters() const = 0;
+  /// k, the units per cluster.
+  virtual int cluster_size() const = 0;
+  /// The sum of the squared cluster counts of a sample with x successes,
+  /// from uniforms u[0 .. m - 2] in [0, 1).
+  virtual std::int64_t sum_squares(int x, const double* u) const = 0;
+};
 
 class SamplingModel {
  public:
@@ -64,6 +82,10 @@ class SamplingModel {
     return std::nullopt;
   }
   virtual double mass_scale(int /*n*/) const { return 1.0; }
+  /// The sampler of cluster counts at (n, p) for a model whose design has
+  /// clusters of more than one unit (design().cluster_size > 1); nullptr
+  /// for the rest, whose samples are x alone.
+  virtual std::unique_ptr<ClusterSampler> cluster_sampler(int /*n*/, double /*p*/) const { return nullptr; }
 };
 
 /// A registry entry: the kind, what it models, its parameters (validated by

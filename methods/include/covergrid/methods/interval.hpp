@@ -88,6 +88,17 @@ struct Design {
   bool operator==(const Design&) const = default;
 };
 
+/// What a design-effect method reads of a clustered sample beyond x: m
+/// clusters of k units each (n = m k) and the sum of the squared cluster
+/// counts, sum of y_i^2, from which the between-cluster variance follows
+/// (equal cluster sizes). Independent draws are m = n clusters of one unit,
+/// whose squared counts sum to x.
+struct ClusterCounts {
+  int clusters = 0;
+  int cluster_size = 1;
+  double sum_squares = 0;
+};
+
 /// One method of the catalog, with its parameters already bound.
 class IntervalMethod {
  public:
@@ -119,6 +130,19 @@ class IntervalMethod {
     (void)design;
     return nullptr;
   }
+  /// True when the method needs the cluster counts and not only x (a
+  /// design-effect method bound to a design with clusters of more than one
+  /// unit). Its limits then come from cluster_lower()/cluster_upper(); the
+  /// exact engine, which sums over x, leaves its cells NaN, and Monte Carlo
+  /// draws the clusters (engine/src/monte_carlo.cpp).
+  virtual bool needs_clusters() const { return false; }
+  /// Raw limits from a clustered sample; the default ignores the clusters.
+  virtual double cluster_lower(int x, const ClusterCounts& c, double a_lo) const {
+    return lower(x, c.clusters * c.cluster_size, a_lo);
+  }
+  virtual double cluster_upper(int x, const ClusterCounts& c, double a_hi) const {
+    return upper(x, c.clusters * c.cluster_size, a_hi);
+  }
   /// True for a method with limits only for some (n, level, side) (a table
   /// read from a file); missing() then says what is absent.
   virtual bool limited_domain() const { return false; }
@@ -140,5 +164,10 @@ std::shared_ptr<const IntervalMethod> under_design(const std::shared_ptr<const I
 /// The interval for (x, n) at `level` on `side`, raw and clipped.
 /// Precondition: method.supports(side), 0 <= x <= n, n >= 1, 0 < level < 1.
 Limits interval(const IntervalMethod& method, int x, int n, double level, Side side);
+
+/// The same from a clustered sample's counts (n = c.clusters * c.cluster_size),
+/// through cluster_lower()/cluster_upper(), equal-tailed when two-sided.
+Limits clustered_interval(const IntervalMethod& method, int x, const ClusterCounts& c, double level,
+                          Side side);
 
 }  // namespace covergrid::methods

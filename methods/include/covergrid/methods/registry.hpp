@@ -95,6 +95,9 @@ MethodEntry blaker_entry();
 MethodEntry fpc_wald_entry();
 MethodEntry fpc_wilson_entry();
 MethodEntry exact_hypergeometric_entry();
+MethodEntry deff_wilson_entry();
+MethodEntry deff_clopper_pearson_entry();
+MethodEntry deff_jeffreys_entry();
 MethodEntry table_entry();
 
 }  // namespace covergrid::methods

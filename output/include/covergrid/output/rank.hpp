@@ -51,6 +51,9 @@ struct RankEntry {
       0;  // exact: min over the band's n of the continuous infimum; simulated: grid minimum
   std::int64_t worst_n = 0;
   double mean_width = 0, mean_coverage = 0, rms_deviation = 0;  // means over the band's n
+  /// Ranked on simulated figures in a cube with exact ones (no exact cells:
+  /// a method that needs the cluster counts); such entries follow the rest.
+  bool simulated = false;
   bool has_pair = false;  // paired difference of coverage against the group's first method
   double pair_difference = 0, pair_se = 0;
 };

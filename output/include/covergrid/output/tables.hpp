@@ -19,13 +19,19 @@ struct RankingRow {
   double rms_deviation = 0;  // mean over n of the grid RMS deviation from nominal
   double share_below = 0;    // mean over n of the share of grid p below nominal
   double mean_width = 0;     // mean over n of the grid mean width
+  /// True for a row from the simulated figures in a cube that has exact
+  /// ones: a method that needs the cluster counts has no exact cells under a
+  /// clustered model. Such rows follow the exact ones, ranked among
+  /// themselves, with worst = the smallest simulated coverage on the grid.
+  bool simulated = false;
 };
 
 /// Ranking per (model, side, level) over the whole n range, in the order
 /// `covergrid rank --criterion shortest --bands <all n>` gives (ranks_before
 /// in rank.hpp): the methods whose worst coverage meets nominal first, by
 /// mean width, then the others by worst coverage. Methods that do not define
-/// a side are left out.
+/// a side are left out; methods with simulated figures only follow the rest
+/// (RankingRow::simulated).
 std::vector<RankingRow> ranking(const CubeReader& cube);
 
 /// Writes <prefix>-summary.csv, <prefix>-ranking.csv and <prefix>-summary.md
@@ -38,7 +44,12 @@ extern const char* const ranking_order_text;
 /// The order sentence and one explanation per column of the ranking table
 /// (headline, Markdown summary, report); `exact` picks the exact or the
 /// simulated wording.
-std::string ranking_footnote(bool exact);
+/// `simulated_rows`: some rows are simulated only (RankingRow::simulated),
+/// which a sentence then explains.
+std::string ranking_footnote(bool exact, bool simulated_rows = false);
+
+/// True when some row of `rows` is simulated only.
+bool has_simulated_rows(const std::vector<RankingRow>& rows);
 
 /// The headline: the ranking as an aligned text table, a footnote on every
 /// column, and the cautions.
