@@ -4,7 +4,10 @@
 /// scenario, owns the journal and the cube, and deals chunk ids one at a time
 /// to whichever rank asks (so a slow rank takes fewer); every rank, rank 0
 /// included, computes its chunks with oneTBB and sends the results to rank
-/// 0, which appends them to the journal as they arrive. No rank holds more
+/// 0, which appends them to the journal as they arrive. The dealing itself
+/// is the engine's (engine::deal_chunks, engine::serve_chunks in
+/// engine/src/dealing.cpp) over MPI as its Transport; this layer adds the
+/// session, the broadcast of the scenario and the final exit status. No rank holds more
 /// than its chunks in flight; the cube is assembled from the journal chunk by
 /// chunk, as in a single-process run, so its datasets are the same bytes.
 /// A failing rank reports to rank 0, which stops dealing, collects what the
