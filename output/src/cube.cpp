@@ -1189,6 +1189,12 @@ void CubeReader::validate() {
   methods = read_strings(root, "/summary/method");
   n = read_int64s(root, "/summary/n");
   p = read_doubles(root, "/summary/p");
+  for (const auto& name : attained_datasets) {
+    std::vector<double> values = read_doubles(root, name);
+    for (double v : values)
+      if (!(v >= 0.0 && v <= 1.0)) bad(fmt::format("dataset {} holds {}, outside [0, 1]", name, v));
+    attained_[name.substr(8, name.size() - 19)] = std::move(values);
+  }
   auto labels_ok = [&](const std::vector<std::string>& v, const std::string& name) {
     for (std::size_t i = 0; i < v.size(); ++i) {
       if (v[i].empty()) bad(fmt::format("dataset {} has an empty label at index {}", name, i));
@@ -1463,6 +1469,11 @@ std::size_t CubeReader::verify() const {
       refuse_damaged(path_, name, e);
     }
   return names.size();
+}
+
+const std::vector<double>& CubeReader::attained_p(std::size_t model) const {
+  const auto it = attained_.find(models.at(model));
+  return it == attained_.end() ? p : it->second;
 }
 
 std::vector<double> CubeReader::mc_replicates(std::size_t model, std::size_t n_index) const {

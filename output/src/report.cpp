@@ -647,6 +647,7 @@ std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_
       const double left = panel_w * static_cast<double>(k % cols),
                    top = title_h + panel_h * static_cast<double>(k / cols);
       const Axis x{cube_.p.front(), cube_.p.back(), left + 58, left + panel_w - 14, p_scale_};
+      const auto& at_p = cube_.attained_p(c.model);  // a finite population's K/N, drawn where evaluated
       const Axis y{y_lo, 1.0, top + head_h + plot_h, top + head_h, svg::Scale::linear};
       svg.text(left + 58, top + 16, fmt::format("n = {}", cube_.n[ni]), {{"class", "panel-title"}});
       svg.axes(x, y, "p", k % cols == 0 ? "coverage" : "");
@@ -654,7 +655,7 @@ std::string Report::coverage_figure(const Combo& c, const std::vector<std::size_
       const auto keep = plotted_points(values, opt_.max_points);
       std::vector<double> px_x, px_y, v_drawn;
       for (std::size_t i : keep) {
-        px_x.push_back(x(cube_.p[i]));
+        px_x.push_back(x(at_p[i]));
         px_y.push_back(y(values[i]));
         v_drawn.push_back(values[i]);
       }
@@ -846,6 +847,7 @@ std::string Report::width_figure(const Combo& c, const std::vector<std::size_t>&
     const double left = panel_w * static_cast<double>(k % per_row),
                  top = panel_h * static_cast<double>(k / per_row);
     const Axis x{cube_.p.front(), cube_.p.back(), left + 52, left + panel_w - 12, p_scale_};
+    const auto& at_p = cube_.attained_p(c.model);  // a finite population's K/N, drawn where evaluated
     const Axis y{0, svg::nice_range(0, hi > 0 ? hi : 1, 5).second, top + panel_h - 40, top + 20,
                  svg::Scale::linear};
     svg.text(left + 52, top + 14, fmt::format("n = {}", cube_.n[ni]), {{"class", "panel-title"}});
@@ -856,7 +858,7 @@ std::string Report::width_figure(const Combo& c, const std::vector<std::size_t>&
       const auto keep = plotted_points(values[r], opt_.max_points);
       std::vector<double> px_x, px_y, v_drawn;
       for (std::size_t i : keep) {
-        px_x.push_back(x(cube_.p[i]));
+        px_x.push_back(x(at_p[i]));
         px_y.push_back(y(values[r][i]));
         v_drawn.push_back(values[r][i]);
       }

@@ -297,6 +297,17 @@ def check_case(cube_path, html_path, expect_source, max_bins):
             assert len(got) == len(idx) == len(el.get("points").split())
             for i, v in zip(idx, got):
                 assert same(v, row[i]), (el.get("data-method"), el.get("data-n"), ps[i], v, row[i])
+            # A finite population's curve is drawn at the K/N its model
+            # evaluated (/models/<label>/p_attained), not at the grid's p: on
+            # the models case's linear p axis an affine image of them within
+            # the coordinates. rounding (0.1 px each; the grid p would miss by px).
+            key = f"models/{models[mo]}/p_attained"
+            xs = [float(pt.split(",")[0]) for pt in el.get("points").split()]
+            at = f[key][:] if key in f else None
+            if at is not None and len(idx) > 2 and at[idx[-1]] > at[idx[0]]:
+                slope = (xs[-1] - xs[0]) / (at[idx[-1]] - at[idx[0]])
+                for i, x in zip(idx, xs):
+                    assert abs(xs[0] + slope * (at[i] - at[idx[0]]) - x) < 0.25, (models[mo], ps[i], at[i], x)
             if source == "mc" and el.get("data-kind") == "coverage":
                 se = f["mc/coverage_se"][mo, s, l, m, ni, :]
                 for i, v in zip(idx, floats(el.get("data-se"))):

@@ -188,6 +188,9 @@ class CubeReader {
 
   bool has_exact() const;
   bool has_mc() const;
+  /// The p a model evaluated for each grid p: /models/<label>/p_attained
+  /// for a model that snaps p (a finite population's K/N), else p itself.
+  const std::vector<double>& attained_p(std::size_t model) const;
   /// Monte Carlo replicates per p for (model, n index).
   std::vector<double> mc_replicates(std::size_t model, std::size_t n_index) const;
   /// One Monte Carlo metric over p for a single (model, side, level, method, n).
@@ -220,6 +223,7 @@ class CubeReader {
   File file_;
   bool complete_ = false;
   std::string shard_ = "all";
+  std::map<std::string, std::vector<double>> attained_;  // per model label that snaps p
 };
 
 }  // namespace covergrid::output
