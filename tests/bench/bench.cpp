@@ -3,7 +3,10 @@
 //
 //   exact-scaling  per-cell cost at n = 1000 and n = 100000 (tables prebuilt)
 //   threads        a 2e5-cell grid on 1 and on 2 threads (whole run, null sink)
-//   prototype      cells/s on one thread, 5 methods, n = 5..200 x 2000 p
+//   prototype      method-cells/s on one thread, 5 methods, n = 5..200 x 2000 p
+//   whole          the whole process (covergrid run, cube and tables) on the prototype grid,
+//                  1 and 2 threads, against the numpy yardstick when ../shared/bench has it,
+//                  and the split of a one-thread run into evaluate / journal / assemble / tables
 //   memory         peak RSS of a full run to a cube with P and 10 P points of p
 //   mc-costs       per-replicate cost against the bare sampler loop; all methods vs one
 //   mc-threads     a Monte Carlo grid on 1 and 2 threads; the cost of 1e5 cells x 1e4 replicates
@@ -23,6 +26,7 @@
 #include "covergrid/engine/shard.hpp"
 #include "covergrid/methods/registry.hpp"
 #include "covergrid/output/cube.hpp"
+#include "covergrid/output/tables.hpp"
 #include "covergrid/scenarios/loader.hpp"
 
 #include <boost/random/binomial_distribution.hpp>
@@ -153,9 +157,14 @@ levels = [0.95]
 )") + five_methods,
                                                           "bench.toml", "");
   const double t = run_null(s, 1);
-  const double cells = static_cast<double>(s.n.size() * s.p.size());
-  fmt::print("prototype grid: n = 5..200 x 2000 p, 5 methods, one thread, whole run: {:.3f} s\n", t);
-  fmt::print("  {:.3g} cells/s ({:.2f} x the prototype's 1.2e7 cells/s)\n", cells / t, cells / t / 1.2e7);
+  // Method-cells (one method at one (n, p)) on both sides: the prototype did
+  // 196 x 2000 x 5 = 1.96e6 of them (coverage and width) in about 0.16 s,
+  // 1.2e7 a second; ours compute all seven metrics and the row summaries.
+  const double cells = static_cast<double>(s.n.size() * s.p.size() * s.methods.size());
+  fmt::print("prototype grid: n = 5..200 x 2000 p, 5 methods, one thread, evaluation into a null sink: {:.3f} s\n",
+             t);
+  fmt::print("  {:.3g} method-cells/s ({:.2f} x the prototype's 1.2e7 method-cells/s; target >= 5e6)\n",
+             cells / t, cells / t / 1.2e7);
 }
 
 /// Child mode: run a grid with `points` p values to a cube in `dir`.
@@ -444,6 +453,161 @@ double timed(const std::string& command) {
   return now() - t0;
 }
 
+/// A sink that times what it forwards: the journal (chunks written,
+/// checkpoints, rows read back) and the assembly of the cube (finish).
+class TimedSink final : public e::ResultSink {
+ public:
+  explicit TimedSink(e::ResultSink& inner) : in_(inner) {}
+  std::vector<char> completed() override { return in_.completed(); }
+  void write_chunk(const e::ChunkResult& r) override { time(journal, [&] { in_.write_chunk(r); }); }
+  void checkpoint() override { time(journal, [&] { in_.checkpoint(); }); }
+  void read_rows(e::Source source, std::size_t metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
+                 std::size_t p_begin, std::size_t p_count, std::vector<double>& out) override {
+    time(journal, [&] { in_.read_rows(source, metric, model, n_begin, n_count, p_begin, p_count, out); });
+  }
+  void write_grid_stats(e::Source source, std::size_t model, std::size_t n_begin, std::size_t n_count,
+                        const std::vector<double>& stats) override {
+    time(journal, [&] { in_.write_grid_stats(source, model, n_begin, n_count, stats); });
+  }
+  void finish() override { time(assemble, [&] { in_.finish(); }); }
+  double journal = 0, assemble = 0;
+
+ private:
+  template <class F>
+  static void time(double& into, F&& f) {
+    const double t0 = now();
+    f();
+    into += now() - t0;
+  }
+  e::ResultSink& in_;
+};
+
+/// The yardstick script's median seconds (the line holding `marker`), or a
+/// negative value when the script is not there.
+double yardstick(const std::string& args, const std::string& marker) {
+  const char* env = std::getenv("COVERGRID_YARDSTICK");
+  const std::string script = env ? env : "../shared/bench/numpy_baseline.py";
+  if (!std::filesystem::exists(script)) return -1;
+  const std::string command = "/usr/bin/python3 " + script + " " + args + " 2>/dev/null";
+  FILE* pipe = popen(command.c_str(), "r");
+  if (!pipe) return -1;
+  std::string out;
+  char buffer[4096];
+  while (std::fgets(buffer, sizeof buffer, pipe)) out += buffer;
+  pclose(pipe);
+  std::size_t line = out.find(marker);
+  if (line == std::string::npos) return -1;
+  const std::size_t at = out.find("total_seconds(median)=", line);
+  if (at == std::string::npos) return -1;
+  return std::strtod(out.c_str() + at + 22, nullptr);
+}
+
+double median(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  return v.empty() ? 0.0 : v[v.size() / 2];
+}
+
+const char* prototype_grid = R"(
+title = "prototype grid"
+[grid]
+n = { from = 5, to = 200 }
+p = { from = 0.00025, to = 0.99975, count = 2000 }
+levels = [0.95]
+[output]
+cube = "whole.h5"
+tables = "whole"
+)";
+
+const char* mc_grid = R"(
+title = "draws dominate"
+seed = 20261203
+[grid]
+n = [10, 30, 100, 300]
+p = { from = 0.0025, to = 0.9975, count = 200 }
+levels = [0.95]
+[evaluate]
+exact = false
+replicates = 100000
+[output]
+cube = "whole-mc.h5"
+tables = "whole-mc"
+)";
+
+/// The whole process (`covergrid run`, cube and tables written, journal on)
+/// against the numpy yardstick, interleaved, medians of `rounds`; then the
+/// split of a one-thread exact run into its parts, in-process.
+void whole() {
+  const std::string dir = (std::filesystem::temp_directory_path() / "covergrid-bench-whole").string();
+  std::filesystem::create_directories(dir);
+  std::ofstream(dir + "/whole.toml") << prototype_grid << five_methods;
+  std::ofstream(dir + "/whole-mc.toml") << mc_grid << five_methods;
+  auto run = [&](const char* file, int threads) {
+    return timed(fmt::format("{} run {}/{} --threads {} --quiet --overwrite --yes > /dev/null", COVERGRID_EXE, dir,
+                             file, threads));
+  };
+  const int rounds = 3;
+  std::vector<double> np_exact, one, two, np_mc, mc_one, mc_two;
+  for (int r = 0; r < rounds; ++r) {
+    np_exact.push_back(yardstick("exact --n 5:200 --P 2000 --pmf logfact --repeat 1", "total_seconds"));
+    one.push_back(run("whole.toml", 1));
+    two.push_back(run("whole.toml", 2));
+    np_mc.push_back(
+        yardstick("mc --n 10,30,100,300 --P 200 --R 100000 --variants hist --repeat 1", "[hist]"));
+    mc_one.push_back(run("whole-mc.toml", 1));
+    mc_two.push_back(run("whole-mc.toml", 2));
+  }
+  const double ne = median(np_exact), no = median(one), nt = median(two);
+  const double nm = median(np_mc), mo = median(mc_one), mt = median(mc_two);
+  fmt::print("whole: covergrid run (cube, tables, journal), medians of {} interleaved runs\n", rounds);
+  fmt::print("  exact, n = 5..200 x 2000 p x 5 methods: 1 thread {:.3f} s, 2 threads {:.3f} s\n", no, nt);
+  if (ne > 0)
+    fmt::print("    numpy log-factorial script {:.3f} s: {:.2f} x on 1 thread (target >= 3), {:.2f} x on 2 "
+               "(target >= 5)\n",
+               ne, ne / no, ne / nt);
+  else
+    fmt::print("    (numpy yardstick not found: set COVERGRID_YARDSTICK)\n");
+  fmt::print("  Monte Carlo, n = 10,30,100,300 x 200 p x 5 methods, R = 1e5: 1 thread {:.3f} s, 2 threads {:.3f} s\n",
+             mo, mt);
+  if (nm > 0)
+    fmt::print("    numpy bincount script {:.3f} s: {:.2f} x on 1 thread (target >= 8), {:.2f} x on 2\n", nm,
+               nm / mo, nm / mt);
+
+  // The split, in-process, one thread: evaluation alone (null sink), then the
+  // same run into the cube with its journal and assembly timed, then tables.
+  const auto s = covergrid::scenarios::load_scenario_text(std::string(prototype_grid) + five_methods,
+                                                          dir + "/whole.toml", dir);
+  const double evaluate = run_null(s, 1);
+  const auto state = covergrid::output::inspect_output(s, true);
+  const auto plan = e::make_plan(s);
+  double run_time = 0, tables = 0;
+  TimedSink* timed_sink = nullptr;
+  {
+    covergrid::output::CubeWriter writer(s, plan, state == covergrid::output::OutputState::resumed);
+    TimedSink sink(writer);
+    timed_sink = &sink;
+    e::RunOptions o;
+    o.threads = 1;
+    const double t0 = now();
+    e::run_scenario(s, sink, o);
+    run_time = now() - t0;
+    const double t1 = now();
+    covergrid::output::write_tables(covergrid::output::CubeReader(s.cube_path), s.tables_prefix);
+    tables = now() - t1;
+    const double journal = timed_sink->journal, assemble = timed_sink->assemble;
+    const double computing = run_time - journal - assemble, total = run_time + tables;
+    fmt::print("  split of a one-thread exact run in-process ({:.3f} s; evaluation alone {:.3f} s):\n", total,
+               evaluate);
+    fmt::print("    evaluate {:.3f} s ({:.0f} %), journal {:.3f} s ({:.0f} %), assemble {:.3f} s ({:.0f} %), "
+               "tables {:.3f} s ({:.0f} %)\n",
+               computing, 100 * computing / total, journal, 100 * journal / total, assemble,
+               100 * assemble / total, tables, 100 * tables / total);
+    fmt::print("    output (journal, assembly, tables) {:.0f} % of the run (target <= 33 %)\n",
+               100 * (journal + assemble + tables) / total);
+    const double method_cells = static_cast<double>(s.n.size() * s.p.size() * s.methods.size());
+    fmt::print("    evaluation {:.3g} method-cells/s per thread (target >= 5e6)\n", method_cells / evaluate);
+  }
+}
+
 /// Shard balance: the 4 shards of a grid whose chunk costs differ 100-fold,
 /// each run alone on one thread (null sink), against the total.
 void shards() {
@@ -640,6 +804,7 @@ int main(int argc, char** argv) {
   if (what == "all" || what == "exact-scaling") exact_scaling();
   if (what == "all" || what == "threads") threads();
   if (what == "all" || what == "prototype") prototype();
+  if (what == "all" || what == "whole") whole();
   if (what == "all" || what == "memory") memory(argv[0]);
   if (what == "all" || what == "mc-costs") mc_costs();
   if (what == "all" || what == "mc-threads") mc_threads();
