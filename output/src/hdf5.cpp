@@ -190,20 +190,26 @@ Handle open_dataset(hid_t parent, const std::string& name) {
 
 namespace {
 
-/// A chunked, shuffled, deflated and checksummed dataset of `file_type`.
+/// A chunked and checksummed dataset of `file_type`, shuffled and deflated
+/// unless `storage` says otherwise.
 Handle create_chunked(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
-                      const std::vector<hsize_t>& chunk, hid_t file_type, hid_t fill_type, const void* fill) {
+                      const std::vector<hsize_t>& chunk, hid_t file_type, hid_t fill_type, const void* fill,
+                      const ChunkedStorage& storage = {}) {
   const int rank = static_cast<int>(dims.size());
   Handle space(check_id(H5Screate_simple(rank, dims.data(), nullptr), "make a dataspace"), H5Sclose);
   Handle dcpl(check_id(H5Pcreate(H5P_DATASET_CREATE), "make a dataset-creation list"), H5Pclose);
   check(H5Pset_chunk(dcpl.get(), rank, chunk.data()), "set chunking for " + name);
-  check(H5Pset_shuffle(dcpl.get()), "set shuffle for " + name);
-  check(H5Pset_deflate(dcpl.get(), 1), "set compression for " + name);
+  if (storage.compress) {
+    check(H5Pset_shuffle(dcpl.get()), "set shuffle for " + name);
+    check(H5Pset_deflate(dcpl.get(), 1), "set compression for " + name);
+  }
   // Last in the pipeline: the checksum covers the bytes as stored.
   check(H5Pset_fletcher32(dcpl.get()), "set the Fletcher-32 checksum for " + name);
   if (fill) check(H5Pset_fill_value(dcpl.get(), fill_type, fill), "set the fill value of " + name);
   check(H5Pset_fill_time(dcpl.get(), H5D_FILL_TIME_IFSET), "set the fill time of " + name);
   Handle dapl = dataset_access();
+  if (storage.cache_bytes > 0)
+    check(H5Pset_chunk_cache(dapl.get(), 521, storage.cache_bytes, 1.0), "set the chunk cache of " + name);
   return Handle(
       check_id(H5Dcreate2(parent, name.c_str(), file_type, space.get(), H5P_DEFAULT, dcpl.get(), dapl.get()),
                "create dataset " + name),
@@ -213,9 +219,9 @@ Handle create_chunked(hid_t parent, const std::string& name, const std::vector<h
 }  // namespace
 
 Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
-                             const std::vector<hsize_t>& chunk) {
+                             const std::vector<hsize_t>& chunk, const ChunkedStorage& storage) {
   const double fill = std::numeric_limits<double>::quiet_NaN();
-  return create_chunked(parent, name, dims, chunk, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, &fill);
+  return create_chunked(parent, name, dims, chunk, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, &fill, storage);
 }
 
 Handle create_int64_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,

@@ -161,8 +161,9 @@ levels = [0.95]
   // 196 x 2000 x 5 = 1.96e6 of them (coverage and width) in about 0.16 s,
   // 1.2e7 a second; ours compute all seven metrics and the row summaries.
   const double cells = static_cast<double>(s.n.size() * s.p.size() * s.methods.size());
-  fmt::print("prototype grid: n = 5..200 x 2000 p, 5 methods, one thread, evaluation into a null sink: {:.3f} s\n",
-             t);
+  fmt::print(
+      "prototype grid: n = 5..200 x 2000 p, 5 methods, one thread, evaluation into a null sink: {:.3f} s\n",
+      t);
   fmt::print("  {:.3g} method-cells/s ({:.2f} x the prototype's 1.2e7 method-cells/s; target >= 5e6)\n",
              cells / t, cells / t / 1.2e7);
 }
@@ -459,17 +460,24 @@ class TimedSink final : public e::ResultSink {
  public:
   explicit TimedSink(e::ResultSink& inner) : in_(inner) {}
   std::vector<char> completed() override { return in_.completed(); }
-  void write_chunk(const e::ChunkResult& r) override { time(journal, [&] { in_.write_chunk(r); }); }
-  void checkpoint() override { time(journal, [&] { in_.checkpoint(); }); }
-  void read_rows(e::Source source, std::size_t metric, std::size_t model, std::size_t n_begin, std::size_t n_count,
-                 std::size_t p_begin, std::size_t p_count, std::vector<double>& out) override {
+  void write_chunk(const e::ChunkResult& r) override {
+    time(journal, [&] { in_.write_chunk(r); });
+  }
+  void checkpoint() override {
+    time(journal, [&] { in_.checkpoint(); });
+  }
+  void read_rows(e::Source source, std::size_t metric, std::size_t model, std::size_t n_begin,
+                 std::size_t n_count, std::size_t p_begin, std::size_t p_count,
+                 std::vector<double>& out) override {
     time(journal, [&] { in_.read_rows(source, metric, model, n_begin, n_count, p_begin, p_count, out); });
   }
   void write_grid_stats(e::Source source, std::size_t model, std::size_t n_begin, std::size_t n_count,
                         const std::vector<double>& stats) override {
     time(journal, [&] { in_.write_grid_stats(source, model, n_begin, n_count, stats); });
   }
-  void finish() override { time(assemble, [&] { in_.finish(); }); }
+  void finish() override {
+    time(assemble, [&] { in_.finish(); });
+  }
   double journal = 0, assemble = 0;
 
  private:
@@ -542,8 +550,8 @@ void whole() {
   std::ofstream(dir + "/whole.toml") << prototype_grid << five_methods;
   std::ofstream(dir + "/whole-mc.toml") << mc_grid << five_methods;
   auto run = [&](const char* file, int threads) {
-    return timed(fmt::format("{} run {}/{} --threads {} --quiet --overwrite --yes > /dev/null", COVERGRID_EXE, dir,
-                             file, threads));
+    return timed(fmt::format("{} run {}/{} --threads {} --quiet --overwrite --yes > /dev/null", COVERGRID_EXE,
+                             dir, file, threads));
   };
   const int rounds = 3;
   std::vector<double> np_exact, one, two, np_mc, mc_one, mc_two;
@@ -561,13 +569,16 @@ void whole() {
   fmt::print("whole: covergrid run (cube, tables, journal), medians of {} interleaved runs\n", rounds);
   fmt::print("  exact, n = 5..200 x 2000 p x 5 methods: 1 thread {:.3f} s, 2 threads {:.3f} s\n", no, nt);
   if (ne > 0)
-    fmt::print("    numpy log-factorial script {:.3f} s: {:.2f} x on 1 thread (target >= 3), {:.2f} x on 2 "
-               "(target >= 5)\n",
-               ne, ne / no, ne / nt);
+    fmt::print(
+        "    numpy log-factorial script {:.3f} s: {:.2f} x on 1 thread (target >= 3), {:.2f} x on 2 "
+        "(target >= 5)\n",
+        ne, ne / no, ne / nt);
   else
     fmt::print("    (numpy yardstick not found: set COVERGRID_YARDSTICK)\n");
-  fmt::print("  Monte Carlo, n = 10,30,100,300 x 200 p x 5 methods, R = 1e5: 1 thread {:.3f} s, 2 threads {:.3f} s\n",
-             mo, mt);
+  fmt::print(
+      "  Monte Carlo, n = 10,30,100,300 x 200 p x 5 methods, R = 1e5: 1 thread {:.3f} s, 2 threads {:.3f} "
+      "s\n",
+      mo, mt);
   if (nm > 0)
     fmt::print("    numpy bincount script {:.3f} s: {:.2f} x on 1 thread (target >= 8), {:.2f} x on 2\n", nm,
                nm / mo, nm / mt);
@@ -597,10 +608,11 @@ void whole() {
     const double computing = run_time - journal - assemble, total = run_time + tables;
     fmt::print("  split of a one-thread exact run in-process ({:.3f} s; evaluation alone {:.3f} s):\n", total,
                evaluate);
-    fmt::print("    evaluate {:.3f} s ({:.0f} %), journal {:.3f} s ({:.0f} %), assemble {:.3f} s ({:.0f} %), "
-               "tables {:.3f} s ({:.0f} %)\n",
-               computing, 100 * computing / total, journal, 100 * journal / total, assemble,
-               100 * assemble / total, tables, 100 * tables / total);
+    fmt::print(
+        "    evaluate {:.3f} s ({:.0f} %), journal {:.3f} s ({:.0f} %), assemble {:.3f} s ({:.0f} %), "
+        "tables {:.3f} s ({:.0f} %)\n",
+        computing, 100 * computing / total, journal, 100 * journal / total, assemble, 100 * assemble / total,
+        tables, 100 * tables / total);
     fmt::print("    output (journal, assembly, tables) {:.0f} % of the run (target <= 33 %)\n",
                100 * (journal + assemble + tables) / total);
     const double method_cells = static_cast<double>(s.n.size() * s.p.size() * s.methods.size());

@@ -92,11 +92,19 @@ Handle open_group(hid_t parent, const std::string& name);
 bool exists(hid_t parent, const std::string& path);
 Handle open_dataset(hid_t parent, const std::string& name);
 
-/// A chunked, shuffled and deflated float64 dataset filled with NaN, every
-/// storage chunk guarded by a Fletcher-32 checksum (HDF5 verifies it on
-/// every read and fails the read of a damaged chunk).
+/// How a chunked dataset is stored: every storage chunk guarded by a
+/// Fletcher-32 checksum (HDF5 verifies it on every read and fails the read
+/// of a damaged chunk); shuffled and deflated when `compress`; with a raw
+/// chunk cache of `cache_bytes` (0: none) when writes fill a storage chunk
+/// in several pieces, so that each chunk is filtered once.
+struct ChunkedStorage {
+  bool compress = true;
+  std::size_t cache_bytes = 0;
+};
+
+/// A chunked float64 dataset filled with NaN, stored as `storage` says.
 Handle create_double_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
-                             const std::vector<hsize_t>& chunk);
+                             const std::vector<hsize_t>& chunk, const ChunkedStorage& storage = {});
 /// The same for int64 values (HDF5's default fill value, 0).
 Handle create_int64_dataset(hid_t parent, const std::string& name, const std::vector<hsize_t>& dims,
                             const std::vector<hsize_t>& chunk);
