@@ -197,8 +197,28 @@ class Reader {
 
 }  // namespace
 
-std::string encode_chunk(const engine::ChunkResult& r) {
-  std::string out;
+namespace {
+
+/// The bytes encode_chunk writes for `r`.
+std::size_t encoded_size(const engine::ChunkResult& r) {
+  std::size_t bytes = 1;
+  auto add = [&](const auto& vectors) {
+    for (const auto& v : vectors) bytes += 8 + v.size() * sizeof(double);
+  };
+  if (r.has_exact) add(r.exact);
+  if (r.has_row_stats) add(r.row_stats);
+  if (r.has_grid_stats) add(r.grid_stats);
+  if (r.has_mc) {
+    add(r.mc);
+    bytes += 8 + r.mc_replicates.size() * sizeof(double);
+  }
+  if (r.has_mc_grid_stats) add(r.mc_grid_stats);
+  return bytes;
+}
+
+/// Appends the encoding of `r` to `out` (one reservation, no regrowth).
+void encode_into(std::string& out, const engine::ChunkResult& r) {
+  out.reserve(out.size() + encoded_size(r));
   const std::uint8_t flags = static_cast<std::uint8_t>((r.has_exact ? 1 : 0) | (r.has_row_stats ? 2 : 0) |
                                                        (r.has_grid_stats ? 4 : 0) | (r.has_mc ? 8 : 0) |
                                                        (r.has_mc_grid_stats ? 16 : 0));
@@ -215,6 +235,13 @@ std::string encode_chunk(const engine::ChunkResult& r) {
   }
   if (r.has_mc_grid_stats)
     for (const auto& v : r.mc_grid_stats) put_vector(out, v);
+}
+
+}  // namespace
+
+std::string encode_chunk(const engine::ChunkResult& r) {
+  std::string out;
+  encode_into(out, r);
   return out;
 }
 
@@ -613,27 +640,39 @@ std::vector<char> CubeWriter::completed() {
   return out;
 }
 
-void CubeWriter::write_chunk(const engine::ChunkResult& r) { write_encoded(r.spec.id, encode_chunk(r)); }
+void CubeWriter::write_chunk(const engine::ChunkResult& r) {
+  record_.assign(record_header_size, '\0');
+  encode_into(record_, r);
+  append_record(r.spec.id);
+}
 
 void CubeWriter::write_encoded(std::size_t chunk, const std::string& payload) {
+  record_.assign(record_header_size, '\0');
+  record_ += payload;
+  append_record(chunk);
+}
+
+void CubeWriter::append_record(std::size_t chunk) {
   if (chunk >= offsets_.size()) throw CubeError("internal: chunk id out of range");
-  std::string record;
-  record.reserve(record_header_size + payload.size());
-  put(record, record_magic);
-  put(record, std::uint32_t{0});
-  put(record, static_cast<std::uint64_t>(chunk));
-  put(record, static_cast<std::uint64_t>(payload.size()));
-  put(record, record_checksum(version_, chunk, payload.data(), payload.size()));
-  record += payload;
+  const char* payload = record_.data() + record_header_size;
+  const std::size_t size = record_.size() - record_header_size;
+  std::string head;
+  head.reserve(record_header_size);
+  put(head, record_magic);
+  put(head, std::uint32_t{0});
+  put(head, static_cast<std::uint64_t>(chunk));
+  put(head, static_cast<std::uint64_t>(size));
+  put(head, record_checksum(version_, chunk, payload, size));
+  record_.replace(0, record_header_size, head);
   try {
-    write_all(fd_, record.data(), record.size(), end_, journal_path_);
+    write_all(fd_, record_.data(), record_.size(), end_, journal_path_);
   } catch (const OutOfSpace&) {
     // What was written of this record is a torn tail, which a resume drops.
     refuse_out_of_space(journal_path_, "");
   }
   offsets_[chunk] = static_cast<std::int64_t>(end_);
   ++written_;
-  end_ += record.size();
+  end_ += record_.size();
 }
 
 void CubeWriter::checkpoint() {
@@ -646,7 +685,7 @@ void CubeWriter::checkpoint() {
   }
 }
 
-engine::ChunkResult CubeWriter::read_record(std::size_t chunk) const {
+void CubeWriter::read_record(std::size_t chunk, engine::ChunkResult& r) const {
   if (offsets_[chunk] < 0)
     throw CubeError("internal: chunk " + std::to_string(chunk) + " is not in the journal");
   const std::uint64_t at = static_cast<std::uint64_t>(offsets_[chunk]);
@@ -657,14 +696,12 @@ engine::ChunkResult CubeWriter::read_record(std::size_t chunk) const {
   in.get<std::uint32_t>();
   in.get<std::uint64_t>();
   const auto size = in.get<std::uint64_t>();
-  std::vector<char> buf(size);
-  if (!read_at(fd_, buf.data(), size, at + record_header_size))
+  read_buffer_.resize(size);
+  if (!read_at(fd_, read_buffer_.data(), size, at + record_header_size))
     throw CubeError(journal_path_ + ": cannot read a record");
-  engine::ChunkResult r;
   r.spec = plan_.chunks[chunk];
   r.combos = engine::combo_count(scenario_);
-  decode_chunk(buf.data(), size, r);
-  return r;
+  decode_chunk(read_buffer_.data(), size, r);
 }
 
 void CubeWriter::read_rows(engine::Source source, std::size_t metric, std::size_t model, std::size_t n_begin,
@@ -677,7 +714,8 @@ void CubeWriter::read_rows(engine::Source source, std::size_t metric, std::size_
   if (spec.n_begin != n_begin || spec.n_count != n_count || spec.p_begin != p_begin ||
       spec.p_count != p_count)
     throw CubeError("internal: read_rows asked for a block that is not one chunk");
-  engine::ChunkResult r = read_record(id);
+  engine::ChunkResult r;
+  read_record(id, r);
   out = source == engine::Source::exact ? std::move(r.exact.at(metric)) : std::move(r.mc.at(metric));
 }
 
@@ -702,10 +740,10 @@ void CubeWriter::finish() {
   // the same command assembles the cube again once the cause is gone.
   try {
     assemble_cube(temp_path_, {scenario_, plan_, shard_,
-                               [this](std::size_t id) {
+                               [this](std::size_t id, engine::ChunkResult& into) {
                                  if (stop_ && stop_->load())
                                    throw Interrupted("stopped while the cube was being assembled");
-                                 return read_record(id);
+                                 read_record(id, into);
                                },
                                split_stats_});
     if (stop_ && stop_->load()) throw Interrupted("stopped while the cube was being assembled");
@@ -949,9 +987,10 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
   std::vector<std::uint8_t> done(plan_.chunks.size(), in.shard ? 0 : 1);
   if (in.shard)
     for (std::size_t id : in.shard->chunks) done.at(id) = 1;
+  engine::ChunkResult r;  // reused: its vectors keep their memory from chunk to chunk
   for (const auto& c : plan_.chunks) {
     if (!done[c.id]) continue;
-    const engine::ChunkResult r = in.load(c.id);
+    in.load(c.id, r);
     const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin, c.p_begin};
     const std::vector<hsize_t> count = {1, S, L, M, c.n_count, c.p_count};
     const std::vector<hsize_t> sstart = {c.model, 0, 0, 0, c.n_begin};

@@ -115,7 +115,8 @@ class ShardReplay final : public engine::ResultSink {
   void finish() override {
     const std::string temp = partial_path(out_);
     try {
-      assemble_cube(temp, {s_, plan_, nullptr, [this](std::size_t id) { return load(id); }, split_});
+      assemble_cube(temp, {s_, plan_, nullptr,
+                           [this](std::size_t id, engine::ChunkResult& into) { into = load(id); }, split_});
     } catch (const OutOfSpace&) {
       // The user's disk, not a fault: exit 2; merge_shards removes the .partial.
       throw InputError(temp,
