@@ -183,7 +183,8 @@ TEST_CASE("bad --shard values are refused before anything is written", "[cli][sh
   CHECK(std::distance(fs::directory_iterator(dir.path()), fs::directory_iterator()) == 1);
   const auto plan = call({"run", file.string(), "--shard", "2/4", "--dry-run"});
   CHECK(plan.status == 0);
-  CHECK(plan.out.find("chunks: 24 of 1 n x 2048 p") != std::string::npos);
+  // 1861 = 2048 / (1 + 100 replicates / 1000): Monte Carlo chunks hold fewer cells.
+  CHECK(plan.out.find("chunks: 24 of 1 n x 1861 p") != std::string::npos);
   CHECK(plan.out.find("shard 2/4: chunks ") != std::string::npos);
   CHECK(std::distance(fs::directory_iterator(dir.path()), fs::directory_iterator()) == 1);
 }
