@@ -23,7 +23,7 @@
 // closed-form mass over p. The continuous worst case therefore searches each
 // segment densely (flagged as refined), and the means over p are taken by
 // Gauss-Legendre quadrature per segment between interval endpoints
-// (engine/src/exact.cpp).
+// (quadrature_means in engine/src/exact_points.cpp).
 //
 // Methods that use only (x, n) are evaluated exactly and by Monte Carlo (the
 // sampler inverts this window). Design-effect methods, which need the
