@@ -6,6 +6,8 @@
 // polls, so it leaves the cores to the computation.
 #include "covergrid/engine/dealing.hpp"
 
+#include "pending_chunks.hpp"
+
 #include <fmt/format.h>
 
 #include <chrono>
@@ -286,27 +288,12 @@ RunReport deal_chunks(const Scenario& scenario, const Plan& plan, const DealtSin
                       const RunOptions& options, Transport& transport) {
   RunReport report;
   const std::vector<char> done = out.sink->completed();
-  std::vector<char> selected(plan.chunks.size(), options.only_chunks ? 0 : 1);
-  if (options.only_chunks)
-    for (std::size_t id : *options.only_chunks) selected.at(id) = 1;
-  std::vector<std::size_t> todo;
-  std::size_t cells_done = 0, cells_total = 0;
-  for (const auto& c : plan.chunks) {
-    if (!selected[c.id]) continue;
-    ++report.chunks_total;
-    cells_total += c.n_count * c.p_count;
-    if (done[c.id]) {
-      ++report.chunks_resumed;
-      cells_done += c.n_count * c.p_count;
-    } else {
-      todo.push_back(c.id);
-    }
-  }
+  detail::PendingChunks pending = detail::pending_chunks(plan, done, options, report);
 
-  Dealer dealer(todo);
+  Dealer dealer(std::move(pending.todo));
   DealState state(plan, out, options, transport, report, dealer);
-  state.cells_done = cells_done;
-  state.cells_total = cells_total;
+  state.cells_done = pending.cells_done;
+  state.cells_total = pending.cells_total;
   Computer local(scenario, plan, options.threads, [&] { return dealer.take(); });
   bool local_reported = false;
   for (;;) {

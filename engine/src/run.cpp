@@ -5,6 +5,7 @@
 #include "covergrid/engine/interval_table.hpp"
 #include "covergrid/engine/monte_carlo.hpp"
 #include "covergrid/engine/random.hpp"
+#include "pending_chunks.hpp"
 
 #include <tbb/global_control.h>
 #include <tbb/parallel_for.h>
@@ -454,6 +455,30 @@ void compute_feed(const Scenario& scenario, const Plan& plan, ChunkFeed& feed, i
   schedule_chunks(scenario, plan, feed, threads, static_cast<std::size_t>(threads) * 2, false);
 }
 
+namespace detail {
+
+PendingChunks pending_chunks(const Plan& plan, const std::vector<char>& done, const RunOptions& options,
+                             RunReport& report) {
+  std::vector<char> selected(plan.chunks.size(), options.only_chunks ? 0 : 1);
+  if (options.only_chunks)
+    for (std::size_t id : *options.only_chunks) selected.at(id) = 1;
+  PendingChunks out;
+  for (const auto& c : plan.chunks) {
+    if (!selected[c.id]) continue;
+    ++report.chunks_total;
+    out.cells_total += c.n_count * c.p_count;
+    if (done[c.id]) {
+      ++report.chunks_resumed;
+      out.cells_done += c.n_count * c.p_count;
+    } else {
+      out.todo.push_back(c.id);
+    }
+  }
+  return out;
+}
+
+}  // namespace detail
+
 RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOptions& options) {
   const Plan plan = make_plan(scenario, options.chunk_cells);
   RunReport report;
@@ -461,24 +486,12 @@ RunReport run_scenario(const Scenario& scenario, ResultSink& sink, const RunOpti
   if (done.size() != plan.chunks.size())
     throw std::logic_error("internal: sink reports a different chunk count than the plan");
 
-  std::vector<char> selected(plan.chunks.size(), options.only_chunks ? 0 : 1);
-  if (options.only_chunks)
-    for (std::size_t id : *options.only_chunks) selected.at(id) = 1;
   // Chunk ids still to compute, in plan order (chunks are values computed
   // from their ids; the plan stores none).
-  std::vector<std::size_t> todo;
-  std::size_t cells_done = 0, cells_total = 0;
-  for (const auto& c : plan.chunks) {
-    if (!selected[c.id]) continue;
-    ++report.chunks_total;
-    cells_total += c.n_count * c.p_count;
-    if (done[c.id]) {
-      ++report.chunks_resumed;
-      cells_done += c.n_count * c.p_count;
-    } else {
-      todo.push_back(c.id);
-    }
-  }
+  const detail::PendingChunks pending = detail::pending_chunks(plan, done, options, report);
+  const std::vector<std::size_t>& todo = pending.todo;
+  std::size_t cells_done = pending.cells_done;
+  const std::size_t cells_total = pending.cells_total;
 
   const int threads = thread_count(options.threads);
   // Chunks in flight (bounds memory) and chunks between checkpoints.

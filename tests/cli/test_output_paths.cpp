@@ -129,7 +129,8 @@ TEST_CASE("report, audit and merge check -o before any work", "[cli][paths]") {
 TEST_CASE("run states its estimate and asks for --yes when the run is large", "[cli][paths][estimate]") {
   ScratchDir dir("large");
   // 10^5 n x 10^4 p = 10^9 cells (counted from the grid): hours of work and
-  // tens of GB of data, above the project's own large-run thresholds.
+  // tens of GB of data, above the project's own large-run thresholds (an
+  // invented grid: no number here is a reference value).
   std::ofstream(dir.file("huge.toml")) << R"([grid]
 n = { from = 1, to = 100000 }
 p = { from = 0.0001, to = 0.9999, count = 10000 }
