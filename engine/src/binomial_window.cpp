@@ -29,11 +29,10 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
   auto& w = out.w;
   int& lo = out.lo;
   int& hi = out.hi;
-  w.clear();
   out.tail_bound = 2 * tail_bound_per_side;
   if (p <= 0.0 || p >= 1.0) {
     lo = hi = (p <= 0.0 ? 0 : n);
-    w.push_back(1.0);
+    w.assign(1, 1.0);
     out.sum_up();
     return;
   }
@@ -45,34 +44,85 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
   const bool table = inv.size() >= static_cast<std::size_t>(n) + 2;
   auto one_over = [&](int k) { return table ? inv[static_cast<std::size_t>(k)] : 1.0 / k; };
 
-  // Lower side first (into a scratch buffer, nearest the mode first). Each
-  // side stops when the geometric bound term * s / (1 - s) on the rest is
-  // within the per-side bound, tested as term * s <= bound * (1 - s).
-  thread_local std::vector<double> down;
-  down.clear();
+  // Both sides are written into a scratch row indexed by x (the lower side
+  // downward from the mode), then copied out with the running sums in one
+  // pass: no reversal and no growth checks per term. Each side stops when the
+  // geometric bound term * s / (1 - s) on the rest is within the per-side
+  // bound, tested as term * s <= bound * (1 - s). The terms are made two at a
+  // time, the second from the first one's parent times both ratios, so the
+  // chain of products that each term waits on is half as long (the window
+  // was bound by that chain's latency: `scripts/bench prototype`).
+  thread_local std::vector<double> scratch;
+  if (scratch.size() < static_cast<std::size_t>(n) + 1) scratch.resize(static_cast<std::size_t>(n) + 1);
+  double* row = scratch.data();
+  row[mode] = at_mode;
+  auto down = [&](int at) { return at * inv_odds * one_over(n - at + 1); };  // P(at - 1) / P(at)
+  auto up = [&](int at) { return (n - at) * odds * one_over(at + 1); };      // P(at + 1) / P(at)
+  auto ends = [](double term, double s) { return s < 1.0 && term * s <= tail_bound_per_side * (1.0 - s); };
   double term = at_mode;
   int k = mode;
-  while (k > 0) {
-    const double s = k * inv_odds * one_over(n - k + 1);
-    if (s < 1.0 && term * s <= tail_bound_per_side * (1.0 - s)) break;
-    term *= s;
-    --k;
-    down.push_back(term);
+  for (;;) {
+    if (k == 0) break;
+    const double s1 = down(k);
+    if (ends(term, s1)) break;
+    const double t1 = term * s1;
+    row[k - 1] = t1;
+    if (k == 1) {
+      k = 0;
+      break;
+    }
+    const double s2 = down(k - 1);
+    if (ends(t1, s2)) {
+      k -= 1;
+      break;
+    }
+    term *= s1 * s2;
+    row[k - 2] = term;
+    k -= 2;
   }
   lo = k;
-  w.assign(down.rbegin(), down.rend());
-  w.push_back(at_mode);
   term = at_mode;
   k = mode;
-  while (k < n) {
-    const double r = (n - k) * odds * one_over(k + 1);
-    if (r < 1.0 && term * r <= tail_bound_per_side * (1.0 - r)) break;
-    term *= r;
-    ++k;
-    w.push_back(term);
+  for (;;) {
+    if (k == n) break;
+    const double r1 = up(k);
+    if (ends(term, r1)) break;
+    const double t1 = term * r1;
+    row[k + 1] = t1;
+    if (k + 1 == n) {
+      k = n;
+      break;
+    }
+    const double r2 = up(k + 1);
+    if (ends(t1, r2)) {
+      k += 1;
+      break;
+    }
+    term *= r1 * r2;
+    row[k + 2] = term;
+    k += 2;
   }
   hi = k;
-  out.sum_up();
+  const std::size_t size = static_cast<std::size_t>(hi - lo) + 1;
+  w.resize(size);
+  out.cum.resize(size + 1);
+  double* cum = out.cum.data();
+  const double* from = row + lo;
+  // Running sums two terms at a time (the pair's sum is off the chain).
+  double sum = 0;
+  cum[0] = 0;
+  std::size_t i = 0;
+  for (; i + 2 <= size; i += 2) {
+    w[i] = from[i];
+    w[i + 1] = from[i + 1];
+    cum[i + 1] = sum + from[i];
+    sum += from[i] + from[i + 1];
+    cum[i + 2] = sum;
+  }
+  if (i < size) {
+    w[i] = from[i];
+    cum[i + 1] = sum + from[i];
+  }
 }
 
 }  // namespace covergrid::engine

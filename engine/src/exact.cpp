@@ -93,6 +93,113 @@ CellMetrics exact_metrics(const IntervalTable& table, const ProbabilityWindow& w
   return m;
 }
 
+namespace {
+
+/// The width moments of G tables over one window, their sums interleaved so
+/// that each table's chain of additions (in exact_metrics' own order) runs
+/// beside the others instead of after them.
+template <std::size_t G>
+void width_moments_group(const double* const* width, const double* w, std::size_t size,
+                         CellMetrics* const* out) {
+  std::array<double, G> shift, s1{}, s2{};
+  for (std::size_t k = 0; k < G; ++k) shift[k] = width[k][size / 2];
+  for (std::size_t i = 0; i < size; ++i) {
+    const double wi = w[i];
+    for (std::size_t k = 0; k < G; ++k) {
+      const double d = width[k][i] - shift[k];
+      s1[k] += wi * d;
+      s2[k] += wi * d * d;
+    }
+  }
+  for (std::size_t k = 0; k < G; ++k) {
+    (*out[k])[index(Metric::width)] = shift[k] + s1[k];
+    (*out[k])[index(Metric::width_sd)] = std::sqrt(std::max(0.0, s2[k] - s1[k] * s1[k]));
+  }
+}
+
+/// lower_bound / upper_bound of p in a sorted array, walked from a previous answer.
+std::size_t walk_first_at_least(const double* v, std::size_t size, std::size_t at, double p) {
+  at = std::min(at, size);
+  while (at > 0 && v[at - 1] >= p) --at;
+  while (at < size && v[at] < p) ++at;
+  return at;
+}
+std::size_t walk_first_above(const double* v, std::size_t size, std::size_t at, double p) {
+  at = std::min(at, size);
+  while (at > 0 && v[at - 1] > p) --at;
+  while (at < size && v[at] <= p) ++at;
+  return at;
+}
+
+}  // namespace
+
+void exact_metrics_cell(const IntervalTable* const* tables, std::size_t count,
+                        const ProbabilityWindow& window, double p, RunCursor* cursors, CellMetrics* out) {
+  // Up to 6 tables a pass (12 running sums: as many as the registers hold
+  // beside the loads), in groups of about equal size.
+  constexpr std::size_t most = 6;
+  std::size_t fast = 0;
+  for (std::size_t c = 0; c < count; ++c) fast += tables[c]->supported && tables[c]->monotone ? 1 : 0;
+  const std::size_t group =
+      fast == 0 ? 1 : (fast + (fast + most - 1) / most - 1) / ((fast + most - 1) / most);
+  const double* widths[most];
+  CellMetrics* outs[most];
+  std::size_t pending = 0;
+  const std::size_t size = window.w.size(), lo = static_cast<std::size_t>(window.lo);
+  const double* w = window.w.data();
+  auto flush = [&] {
+    switch (pending) {
+      case 6:
+        width_moments_group<6>(widths, w, size, outs);
+        break;
+      case 5:
+        width_moments_group<5>(widths, w, size, outs);
+        break;
+      case 4:
+        width_moments_group<4>(widths, w, size, outs);
+        break;
+      case 3:
+        width_moments_group<3>(widths, w, size, outs);
+        break;
+      case 2:
+        width_moments_group<2>(widths, w, size, outs);
+        break;
+      case 1:
+        width_moments_group<1>(widths, w, size, outs);
+        break;
+      default:
+        break;
+    }
+    pending = 0;
+  };
+  const double* cum = window.cum.data();
+  for (std::size_t c = 0; c < count; ++c) {
+    const IntervalTable& table = *tables[c];
+    if (!table.supported || !table.monotone) {
+      out[c] = exact_metrics_scan(table, window, p);
+      continue;
+    }
+    // The same a and b1 as exact_metrics' searches within the window: the
+    // searches over all x, clamped to it (the limits are sorted).
+    const std::size_t all = table.upper.size();
+    RunCursor& cur = cursors[c];
+    cur.first_up = walk_first_at_least(table.upper.data(), all, cur.first_up, p);
+    cur.past_low = walk_first_above(table.lower.data(), all, cur.past_low, p);
+    const std::size_t a = std::clamp(cur.first_up, lo, lo + size) - lo;
+    const std::size_t b1 = std::clamp(cur.past_low, lo, lo + size) - lo;
+    CellMetrics& m = out[c];
+    m[index(Metric::miss_low)] = cum[a];
+    m[index(Metric::coverage)] = b1 > a ? cum[b1] - cum[a] : 0.0;
+    m[index(Metric::miss_high)] = cum[size] - cum[std::max(a, b1)];
+    m[index(Metric::degenerate)] = sparse_mass(table.degenerate_x, window);
+    m[index(Metric::overshoot)] = sparse_mass(table.overshoot_x, window);
+    widths[pending] = table.width.data() + lo;
+    outs[pending] = &m;
+    if (++pending == group) flush();
+  }
+  flush();
+}
+
 double coverage_by_enumeration(const IntervalTable& table, double p, const SamplingModel& model) {
   if (!table.supported) return nan;
   p = model.attainable(p);

@@ -88,20 +88,24 @@ ChunkResult compute_with_tables(const Scenario& scenario, const ChunkSpec& chunk
   ProbabilityWindow window;  // one window per cell serves both sources
   CellDraws draws;
   std::vector<const IntervalTable*> row_tables(combos);
+  std::vector<RunCursor> cursors(combos);
+  std::vector<CellMetrics> cell(combos);
   for (std::size_t i = 0; i < chunk.n_count; ++i) {
     const int n = scenario.n[chunk.n_begin + i];
     for (std::size_t c = 0; c < combos; ++c) row_tables[c] = &(*tables[i])[c];
+    std::fill(cursors.begin(), cursors.end(), RunCursor{});
     for (std::size_t j = 0; j < chunk.p_count; ++j) {
       const std::size_t p_index = chunk.p_begin + j;
       // The p the model attains (a finite population's K/N); the grid's own p otherwise.
       const double p = model.attainable(scenario.p[p_index]);
       model.window(n, p, window);
-      if (r.has_exact)
+      if (r.has_exact) {
+        exact_metrics_cell(row_tables.data(), combos, window, p, cursors.data(), cell.data());
         for (std::size_t c = 0; c < combos; ++c) {
-          const CellMetrics m = exact_metrics(*row_tables[c], window, p);
           const std::size_t at = c * cells + i * chunk.p_count + j;
-          for (std::size_t k = 0; k < metric_count; ++k) r.exact[k][at] = m[k];
+          for (std::size_t k = 0; k < metric_count; ++k) r.exact[k][at] = cell[c][k];
         }
+      }
       if (r.has_mc) {
         const CellStream stream(scenario.seed, static_cast<std::uint32_t>(chunk.model),
                                 static_cast<std::uint32_t>(n), static_cast<std::uint32_t>(p_index));

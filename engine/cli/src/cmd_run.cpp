@@ -41,7 +41,8 @@ struct RunArgs {
 std::string estimate_text(const engine::RunEstimate& e) {
   return fmt::format(
       "{} cells to compute, {} on {} thread{} (rough; from timing {} sample chunk{} on one thread); "
-      "cube data {} uncompressed (the file is usually smaller), journal up to {} while running",
+      "cube data {} uncompressed (the file is about as large: the metrics are stored uncompressed), journal "
+      "up to {} while running",
       e.cells, engine::duration_words(e.seconds), e.threads, e.threads == 1 ? "" : "s", e.chunks_timed,
       e.chunks_timed == 1 ? "" : "s", engine::size_words(e.cube_bytes), engine::size_words(e.journal_bytes));
 }

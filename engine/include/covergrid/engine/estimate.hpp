@@ -28,7 +28,7 @@ struct RunEstimate {
   double seconds = 0;              // wall time on `threads` threads (rough: within ~2x)
   double calibration_seconds = 0;  // time the calibration took
   std::size_t chunks_timed = 0;
-  double cube_bytes = 0;     // the cube's datasets, uncompressed (the HDF5 file is usually smaller)
+  double cube_bytes = 0;     // the cube's datasets, uncompressed (the HDF5 file is about as large)
   double journal_bytes = 0;  // the journal while the run is in progress (uncompressed)
   int threads = 1;
 

@@ -12,6 +12,7 @@
 
 #include <array>
 #include <cmath>
+#include <cstddef>
 #include <span>
 
 namespace covergrid::engine {
@@ -26,6 +27,23 @@ using CellMetrics = std::array<double, metric_count>;
 /// scanned x by x (exact_metrics_scan). Width moments are one vectorisable
 /// pass; degenerate and overshoot sum over the few x where they occur.
 CellMetrics exact_metrics(const IntervalTable& table, const ProbabilityWindow& window, double p);
+
+/// Where a monotone table's covered run starts and ends at the last p seen:
+/// the first x with U_x >= p and the first x with L_x > p, over all x. A row
+/// of cells walks it from one p to the next instead of searching afresh.
+struct RunCursor {
+  std::size_t first_up = 0;
+  std::size_t past_low = 0;
+};
+
+/// exact_metrics for `count` tables at one (n, p), bit for bit (the tests hold
+/// it to that): out[c] for tables[c]. The covered runs of monotone tables are
+/// walked from cursors[c] (any order of p is right; ascending p within a row
+/// costs about one step), and their width moments are accumulated for several
+/// tables in one pass over the window, so the sums, each in the same order as
+/// exact_metrics adds them, no longer wait on one another.
+void exact_metrics_cell(const IntervalTable* const* tables, std::size_t count,
+                        const ProbabilityWindow& window, double p, RunCursor* cursors, CellMetrics* out);
 
 /// The same metrics by the plain scan over every x of the window, whatever
 /// the table's shape; the tests hold exact_metrics to it.
