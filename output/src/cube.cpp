@@ -1004,7 +1004,7 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
     const std::vector<hsize_t> scount = {1, S, L, M, c.n_count};
     if (r.has_exact)
       for (std::size_t k = 0; k < engine::metric_count; ++k)
-        write_block(exact[k].get(), start, count, r.exact[k].data());
+        write_whole_chunks(exact[k].get(), chunk, start, count, r.exact[k].data());
     if (r.has_row_stats)
       for (std::size_t k = 0; k < r.row_stats.size(); ++k)
         write_block(stats[engine::grid_stat_count + k].get(), sstart, scount, r.row_stats[k].data());
@@ -1013,7 +1013,7 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
         write_block(stats[k].get(), sstart, scount, r.grid_stats[k].data());
     if (r.has_mc) {
       for (std::size_t k = 0; k < engine::mc_metric_count; ++k)
-        write_block(mc[k].get(), start, count, r.mc[k].data());
+        write_whole_chunks(mc[k].get(), chunk, start, count, r.mc[k].data());
       write_block_i64(mc_reps.get(), {c.model, c.n_begin, c.p_begin}, {1, c.n_count, c.p_count},
                       replicate_counts(r.mc_replicates).data());
     }

@@ -7,12 +7,14 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <bit>
 #include <cerrno>
 #include <cmath>
 #include <cstdint>
 #include <cstring>
 #include <limits>
 #include <map>
+#include <stdexcept>
 #include <string_view>
 #include <utility>
 
@@ -377,6 +379,117 @@ void write_block(hid_t dataset, const std::vector<hsize_t>& start, const std::ve
                  const double* data) {
   block_io(dataset, start, count, H5T_NATIVE_DOUBLE, const_cast<double*>(data), true);
 }
+std::uint32_t fletcher32(const void* data, std::size_t size) {
+  // HDF5's sums, per block of at most 360 words (the most that cannot
+  // overflow 32 bits): sum1 += w_i and sum2 += sum1 after each word, that is
+  // sum2 += t * sum1 + sum over i of (t - i) w_i for a block of t words.
+  const auto* bytes = static_cast<const std::uint8_t*>(data);
+  std::size_t words = size / 2;
+  std::uint32_t sum1 = 0, sum2 = 0;
+  while (words > 0) {
+    const std::uint32_t t = static_cast<std::uint32_t>(std::min<std::size_t>(words, 360));
+    std::uint32_t plain = 0, weighted = 0;
+    for (std::uint32_t i = 0; i < t; ++i) {
+      const std::uint32_t w = (static_cast<std::uint32_t>(bytes[2 * i]) << 8) | bytes[2 * i + 1];
+      plain += w;
+      weighted += (t - i) * w;
+    }
+    sum2 += t * sum1 + weighted;
+    sum1 += plain;
+    sum1 = (sum1 & 0xffff) + (sum1 >> 16);
+    sum2 = (sum2 & 0xffff) + (sum2 >> 16);
+    bytes += 2 * t;
+    words -= t;
+  }
+  if (size % 2 != 0) {
+    sum1 += static_cast<std::uint32_t>(*bytes) << 8;
+    sum2 += sum1;
+    sum1 = (sum1 & 0xffff) + (sum1 >> 16);
+    sum2 = (sum2 & 0xffff) + (sum2 >> 16);
+  }
+  sum1 = (sum1 & 0xffff) + (sum1 >> 16);
+  sum2 = (sum2 & 0xffff) + (sum2 >> 16);
+  return (sum2 << 16) | sum1;
+}
+
+namespace {
+
+/// True when the dataset's filter pipeline is Fletcher-32 alone and its
+/// file type is little-endian float64 (the bytes of a native double here).
+bool checksum_only(hid_t dataset) {
+  if constexpr (std::endian::native != std::endian::little) return false;
+  Handle type(check_id(H5Dget_type(dataset), "get a dataset's type"), H5Tclose);
+  if (H5Tequal(type.get(), H5T_IEEE_F64LE) <= 0) return false;
+  Handle dcpl(check_id(H5Dget_create_plist(dataset), "get a dataset's creation list"), H5Pclose);
+  if (H5Pget_nfilters(dcpl.get()) != 1) return false;
+  unsigned flags = 0;
+  std::size_t values = 0;
+  unsigned config = 0;
+  return H5Pget_filter2(dcpl.get(), 0, &flags, &values, nullptr, 0, nullptr, &config) ==
+         H5Z_FILTER_FLETCHER32;
+}
+
+}  // namespace
+
+void write_whole_chunks(hid_t dataset, const std::vector<hsize_t>& chunk, const std::vector<hsize_t>& start,
+                        const std::vector<hsize_t>& count, const double* data) {
+  const std::size_t rank = chunk.size();
+  if (start.size() != rank || count.size() != rank || rank == 0)
+    throw std::logic_error("internal: write_whole_chunks given blocks of another rank");
+  for (std::size_t d = 0; d < rank; ++d)
+    if (chunk[d] == 0 || start[d] % chunk[d] != 0)
+      throw std::logic_error("internal: write_whole_chunks given a block that does not start a chunk");
+  if (!checksum_only(dataset)) {
+    write_block(dataset, start, count, data);
+    return;
+  }
+  // Strides of the block in memory and of a chunk, in elements.
+  std::vector<std::size_t> block_stride(rank, 1), chunk_stride(rank, 1), grid(rank), at(rank, 0);
+  for (std::size_t d = rank - 1; d > 0; --d) {
+    block_stride[d - 1] = block_stride[d] * count[d];
+    chunk_stride[d - 1] = chunk_stride[d] * chunk[d];
+  }
+  for (std::size_t d = 0; d < rank; ++d) grid[d] = (count[d] + chunk[d] - 1) / chunk[d];
+  for (std::size_t d = 0; d < rank; ++d)
+    if (grid[d] == 0) return;
+  const std::size_t elements = chunk_stride[0] * chunk[0], bytes = elements * sizeof(double);
+  thread_local std::vector<double> buffer;
+  buffer.resize(elements + 1);  // the checksum's 4 bytes fit in the extra element
+  std::vector<hsize_t> offset(rank);
+  std::vector<std::size_t> extent(rank), e(rank);
+  for (;;) {
+    // This chunk: where it starts in the block and how much of it the block fills.
+    std::fill(buffer.begin(), buffer.begin() + static_cast<std::ptrdiff_t>(elements),
+              std::numeric_limits<double>::quiet_NaN());
+    for (std::size_t d = 0; d < rank; ++d) {
+      offset[d] = start[d] + at[d] * chunk[d];
+      extent[d] = std::min<std::size_t>(chunk[d], count[d] - at[d] * chunk[d]);
+    }
+    // Rows along the last dimension, over every index of the others.
+    std::fill(e.begin(), e.end(), 0);
+    for (;;) {
+      std::size_t from = 0, to = 0;
+      for (std::size_t d = 0; d < rank; ++d) {
+        from += (at[d] * chunk[d] + e[d]) * block_stride[d];
+        to += e[d] * chunk_stride[d];
+      }
+      std::memcpy(buffer.data() + to, data + from, extent[rank - 1] * sizeof(double));
+      std::size_t d = rank - 1;
+      while (d > 0 && ++e[d - 1] == extent[d - 1]) e[--d] = 0;
+      if (d == 0) break;
+    }
+    const std::uint32_t sum = fletcher32(buffer.data(), bytes);
+    auto* tail = reinterpret_cast<unsigned char*>(buffer.data()) + bytes;
+    for (int b = 0; b < 4; ++b)
+      tail[b] = static_cast<unsigned char>(sum >> (8 * b));  // little-endian, as HDF5 stores it
+    check(H5Dwrite_chunk(dataset, H5P_DEFAULT, 0, offset.data(), bytes + 4, buffer.data()), "write a chunk");
+    // The next chunk of the block.
+    std::size_t d = rank;
+    while (d > 0 && ++at[d - 1] == grid[d - 1]) at[--d] = 0;
+    if (d == 0) return;
+  }
+}
+
 void read_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
                 double* data) {
   block_io(dataset, start, count, H5T_NATIVE_DOUBLE, data, false);

@@ -121,6 +121,20 @@ std::vector<hsize_t> shape(hid_t dataset);
 /// Hyperslab I/O of doubles (start/count per dimension, data in C order).
 void write_block(hid_t dataset, const std::vector<hsize_t>& start, const std::vector<hsize_t>& count,
                  const double* data);
+/// write_block for a block of whole storage chunks (its start a multiple of
+/// `chunk` in every dimension; the block may end inside the dataset's last
+/// chunks) of a double dataset whose only filter is Fletcher-32: each
+/// storage chunk is laid out here (the fill value where the block does not
+/// reach), checksummed here (fletcher32) and handed to HDF5 whole
+/// (H5Dwrite_chunk). The stored bytes are what write_block stores; HDF5's
+/// own write path spent most of the assembly copying and checksumming
+/// (`scripts/bench whole`). Other datasets go through write_block.
+void write_whole_chunks(hid_t dataset, const std::vector<hsize_t>& chunk, const std::vector<hsize_t>& start,
+                        const std::vector<hsize_t>& count, const double* data);
+/// HDF5's Fletcher-32 of `size` bytes, bit for bit as its filter computes it
+/// (16-bit big-endian words, folded every 360 words), summed a block of 360
+/// words at a time so that the compiler can vectorise it.
+std::uint32_t fletcher32(const void* data, std::size_t size);
 /// Throws CubeError unless every chunk of a chunked dataset under the block
 /// is stored: HDF5 reads a chunk missing from a damaged index as the fill
 /// value, silently. For blocks that must have been written (merge).
