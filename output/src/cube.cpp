@@ -622,11 +622,30 @@ CubeWriter::CubeWriter(const engine::Scenario& scenario, const engine::Plan& pla
 }
 
 CubeWriter::~CubeWriter() {
+  drop_assembly();
   if (fd_ >= 0) ::close(fd_);
+}
+
+void CubeWriter::open_assembly() {
+  if (assembly_) return;
+  try {
+    assembly_ = std::make_unique<CubeAssembly>(temp_path_, scenario_, plan_, shard_);
+  } catch (const OutOfSpace&) {
+    drop_assembly();
+    refuse_out_of_space(temp_path_, " the cube");
+  }
+}
+
+void CubeWriter::drop_assembly() {
+  if (!assembly_) return;
+  assembly_.reset();
+  std::error_code ec;
+  fs::remove(temp_path_, ec);
 }
 
 bool CubeWriter::discard_if_empty() {
   if (!created_ || written_ > 0 || fd_ < 0) return false;
+  drop_assembly();
   ::close(fd_);
   fd_ = -1;
   std::error_code ec;
@@ -644,6 +663,20 @@ void CubeWriter::write_chunk(const engine::ChunkResult& r) {
   record_.assign(record_header_size, '\0');
   encode_into(record_, r);
   append_record(r.spec.id);
+  // Into the cube as well, now that the journal holds it: the assembly then
+  // overlaps the computation instead of following it. The journal stays the
+  // record of the run: if the cube cannot be written now (a full disk), it
+  // is dropped and the run goes on; finish() then assembles it from the
+  // journal, and a failure there is reported as it always was.
+  if (progressive_failed_) return;
+  try {
+    quiet_hdf5_errors();  // per thread: the chunks come from any of the run's threads
+    if (!assembly_) assembly_ = std::make_unique<CubeAssembly>(temp_path_, scenario_, plan_, shard_);
+    assembly_->add(r);
+  } catch (const CubeError&) {
+    drop_assembly();
+    progressive_failed_ = true;
+  }
 }
 
 void CubeWriter::write_encoded(std::size_t chunk, const std::string& payload) {
@@ -739,19 +772,25 @@ void CubeWriter::finish() {
   // A failed assembly leaves no .partial behind; the journal stays, so that
   // the same command assembles the cube again once the cause is gone.
   try {
-    assemble_cube(temp_path_, {scenario_, plan_, shard_,
-                               [this](std::size_t id, engine::ChunkResult& into) {
-                                 if (stop_ && stop_->load())
-                                   throw Interrupted("stopped while the cube was being assembled");
-                                 read_record(id, into);
-                               },
-                               split_stats_});
+    quiet_hdf5_errors();
+    open_assembly();
+    engine::ChunkResult r;  // reused: its vectors keep their memory from chunk to chunk
+    for (const auto& c : plan_.chunks) {
+      if (!assembly_->belongs(c.id) || assembly_->added(c.id)) continue;
+      if (stop_ && stop_->load()) throw Interrupted("stopped while the cube was being assembled");
+      read_record(c.id, r);
+      assembly_->add(r);
+    }
+    assembly_->finish(split_stats_);
+    assembly_.reset();
     if (stop_ && stop_->load()) throw Interrupted("stopped while the cube was being assembled");
   } catch (const OutOfSpace&) {
+    drop_assembly();
     std::error_code ec;
     fs::remove(temp_path_, ec);
     refuse_out_of_space(temp_path_, " the cube");
   } catch (...) {
+    drop_assembly();
     std::error_code ec;
     fs::remove(temp_path_, ec);
     throw;
@@ -828,11 +867,11 @@ std::vector<std::int64_t> replicate_counts(const std::vector<double>& v) {
 
 }  // namespace
 
-void assemble_cube(const std::string& path, const CubeContents& in) {
-  const engine::Scenario& s = in.scenario;
-  const engine::Plan& plan_ = in.plan;
-  File file = File::create(path);
-  const hid_t root = file.id();
+CubeAssembly::CubeAssembly(const std::string& path, const engine::Scenario& scenario,
+                           const engine::Plan& plan, const engine::ShardSelection* shard)
+    : s_(scenario), plan_(plan), shard_(shard), file_(File::create(path)) {
+  const engine::Scenario& s = s_;
+  const hid_t root = file_.id();
   set_attr(root, "format", std::string(cube_format_name));
   set_attr(root, "format_version", std::int64_t{cube_format_version});
   set_attr(root, "tool_version", std::string(tool_version));
@@ -841,7 +880,7 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
   set_attr(root, "scenario_sha256", s.sha256);
   set_attr(root, "seed", static_cast<std::int64_t>(s.seed));
   set_attr(root, "created_utc", utc_now());
-  set_attr(root, "shard", in.shard ? in.shard->spec.label() : std::string("all"));
+  set_attr(root, "shard", shard ? shard->spec.label() : std::string("all"));
   set_attr(root, "complete", std::int64_t{0});
 
   std::vector<std::string> models, sides, labels;
@@ -903,6 +942,9 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
   }
 
   const std::size_t S = s.sides.size(), L = s.levels.size(), M = s.methods.size();
+  S_ = S;
+  L_ = L;
+  M_ = M;
   const std::vector<hsize_t> dims = {s.models.size(), S, L, M, s.n.size(), s.p.size()};
   // A storage chunk holds a plan chunk's cells for several methods (up to
   // 128 KiB): HDF5's cost per chunk written (index update, filter pipeline,
@@ -911,7 +953,8 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
   // run writes all methods of a plan chunk at a time.
   const hsize_t methods_per_chunk =
       std::min<hsize_t>(M, std::max<hsize_t>(1, 16384 / (plan_.n_block * plan_.p_block)));
-  const std::vector<hsize_t> chunk = {1, 1, 1, methods_per_chunk, plan_.n_block, plan_.p_block};
+  chunk_ = {1, 1, 1, methods_per_chunk, plan_.n_block, plan_.p_block};
+  const std::vector<hsize_t>& chunk = chunk_;
   const std::vector<std::string> axis_list(axis_names.begin(), axis_names.end());
   // The metrics are stored uncompressed, checksummed (Fletcher-32). On the
   // prototype grid (`scripts/bench whole`) shuffle and deflate gained about
@@ -927,8 +970,9 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
     for (unsigned i = 0; i < 6; ++i) attach_scale(d.get(), scales[i].get(), i, axis_names[i]);
     return d;
   };
-  std::vector<Handle> exact, mc, exact_scales, mc_scales;
-  Handle mc_reps;
+  std::vector<Handle>&exact = exact_, &mc = mc_;
+  std::vector<Handle> exact_scales, mc_scales;
+  Handle& mc_reps = mc_reps_;
   if (s.exact) {
     Handle eg = create_group(root, "exact");
     set_attr(eg.get(), "pmf_tail_bound", 5e-16);
@@ -981,7 +1025,7 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
     for (unsigned i = 0; i < 5; ++i) attach_scale(d.get(), summary_scales[i].get(), i, axis_names[i]);
     return d;
   };
-  std::vector<Handle> stats, mc_stats;
+  std::vector<Handle>&stats = stats_, &mc_stats = mc_stats_;
   if (s.exact)
     for (auto name : engine::stat_names) stats.push_back(make_stat(std::string(name), std::string(name), ""));
   if (s.replicates > 0)
@@ -989,44 +1033,62 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
       const std::string stat(engine::stat_names[k]);
       mc_stats.push_back(make_stat("mc_" + stat, stat, "simulated "));
     }
+  // The chunks this cube holds (a shard's only), as /progress/done records them.
+  done_.assign(plan_.chunks.size(), shard ? 0 : 1);
+  if (shard)
+    for (std::size_t id : shard->chunks) done_.at(id) = 1;
+  added_.assign(plan_.chunks.size(), 0);
+}
 
-  // The chunks, one at a time in plan order.
-  std::vector<std::uint8_t> done(plan_.chunks.size(), in.shard ? 0 : 1);
-  if (in.shard)
-    for (std::size_t id : in.shard->chunks) done.at(id) = 1;
-  engine::ChunkResult r;  // reused: its vectors keep their memory from chunk to chunk
-  for (const auto& c : plan_.chunks) {
-    if (!done[c.id]) continue;
-    in.load(c.id, r);
-    const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin, c.p_begin};
-    const std::vector<hsize_t> count = {1, S, L, M, c.n_count, c.p_count};
-    const std::vector<hsize_t> sstart = {c.model, 0, 0, 0, c.n_begin};
-    const std::vector<hsize_t> scount = {1, S, L, M, c.n_count};
-    if (r.has_exact)
-      for (std::size_t k = 0; k < engine::metric_count; ++k)
-        write_whole_chunks(exact[k].get(), chunk, start, count, r.exact[k].data());
-    if (r.has_row_stats)
-      for (std::size_t k = 0; k < r.row_stats.size(); ++k)
-        write_block(stats[engine::grid_stat_count + k].get(), sstart, scount, r.row_stats[k].data());
-    if (r.has_grid_stats)
-      for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
-        write_block(stats[k].get(), sstart, scount, r.grid_stats[k].data());
-    if (r.has_mc) {
-      for (std::size_t k = 0; k < engine::mc_metric_count; ++k)
-        write_whole_chunks(mc[k].get(), chunk, start, count, r.mc[k].data());
-      write_block_i64(mc_reps.get(), {c.model, c.n_begin, c.p_begin}, {1, c.n_count, c.p_count},
-                      replicate_counts(r.mc_replicates).data());
-    }
-    if (r.has_mc_grid_stats)
-      for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
-        write_block(mc_stats[k].get(), sstart, scount, r.mc_grid_stats[k].data());
+void CubeAssembly::add(const engine::ChunkResult& r) {
+  const engine::ChunkSpec& c = r.spec;
+  if (c.id >= added_.size() || !done_[c.id])
+    throw std::logic_error("internal: chunk " + std::to_string(c.id) + " does not belong in this cube");
+  if (added_[c.id]) throw std::logic_error("internal: chunk " + std::to_string(c.id) + " added twice");
+  const std::size_t S = S_, L = L_, M = M_;
+  const std::vector<hsize_t>& chunk = chunk_;
+  const std::vector<Handle>&exact = exact_, &mc = mc_, &stats = stats_, &mc_stats = mc_stats_;
+  const Handle& mc_reps = mc_reps_;
+  const std::vector<hsize_t> start = {c.model, 0, 0, 0, c.n_begin, c.p_begin};
+  const std::vector<hsize_t> count = {1, S, L, M, c.n_count, c.p_count};
+  const std::vector<hsize_t> sstart = {c.model, 0, 0, 0, c.n_begin};
+  const std::vector<hsize_t> scount = {1, S, L, M, c.n_count};
+  if (r.has_exact)
+    for (std::size_t k = 0; k < engine::metric_count; ++k)
+      write_whole_chunks(exact[k].get(), chunk, start, count, r.exact[k].data());
+  if (r.has_row_stats)
+    for (std::size_t k = 0; k < r.row_stats.size(); ++k)
+      write_block(stats[engine::grid_stat_count + k].get(), sstart, scount, r.row_stats[k].data());
+  if (r.has_grid_stats)
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+      write_block(stats[k].get(), sstart, scount, r.grid_stats[k].data());
+  if (r.has_mc) {
+    for (std::size_t k = 0; k < engine::mc_metric_count; ++k)
+      write_whole_chunks(mc[k].get(), chunk, start, count, r.mc[k].data());
+    write_block_i64(mc_reps.get(), {c.model, c.n_begin, c.p_begin}, {1, c.n_count, c.p_count},
+                    replicate_counts(r.mc_replicates).data());
   }
+  if (r.has_mc_grid_stats)
+    for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
+      write_block(mc_stats[k].get(), sstart, scount, r.mc_grid_stats[k].data());
+  added_[c.id] = 1;
+}
+
+bool CubeAssembly::added(std::size_t chunk) const { return chunk < added_.size() && added_[chunk]; }
+
+void CubeAssembly::finish(const SplitStats& split_stats) {
+  const engine::Scenario& s = s_;
+  for (std::size_t id = 0; id < done_.size(); ++id)
+    if (done_[id] && !added_[id])
+      throw std::logic_error("internal: the cube is finished without chunk " + std::to_string(id));
+  const std::size_t S = S_, L = L_, M = M_;
+  const hid_t root = file_.id();
   // Grid statistics of rows split over chunks.
   const std::size_t combos = engine::combo_count(s);
-  for (const auto& [key, values] : in.split_stats) {
+  for (const auto& [key, values] : split_stats) {
     const std::size_t model = key.second / s.n.size(), n_begin = key.second % s.n.size();
     const std::size_t count = values.size() / (engine::grid_stat_count * combos);
-    auto& target = key.first == 0 ? stats : mc_stats;
+    auto& target = key.first == 0 ? stats_ : mc_stats_;
     for (std::size_t k = 0; k < engine::grid_stat_count; ++k)
       write_block(target[k].get(), {model, 0, 0, 0, n_begin}, {1, S, L, M, count},
                   values.data() + k * combos * count);
@@ -1034,12 +1096,29 @@ void assemble_cube(const std::string& path, const CubeContents& in) {
   Handle pg = create_group(root, "progress");
   set_attr(pg.get(), "n_block", static_cast<std::int64_t>(plan_.n_block));
   set_attr(pg.get(), "p_block", static_cast<std::int64_t>(plan_.p_block));
-  write_vector(pg.get(), "done", done);
-  if (in.shard)
+  write_vector(pg.get(), "done", done_);
+  if (shard_)
     write_vector(pg.get(), "shard_chunks",
-                 std::vector<std::int64_t>(in.shard->chunks.begin(), in.shard->chunks.end()));
+                 std::vector<std::int64_t>(shard_->chunks.begin(), shard_->chunks.end()));
   set_attr(root, "complete", std::int64_t{1});
-  file.flush();
+  file_.flush();
+  exact_.clear();
+  mc_.clear();
+  stats_.clear();
+  mc_stats_.clear();
+  mc_reps_.reset();
+  file_.close();
+}
+
+void assemble_cube(const std::string& path, const CubeContents& in) {
+  CubeAssembly cube(path, in.scenario, in.plan, in.shard);
+  engine::ChunkResult r;  // reused: its vectors keep their memory from chunk to chunk
+  for (const auto& c : in.plan.chunks) {
+    if (!cube.belongs(c.id)) continue;
+    in.load(c.id, r);
+    cube.add(r);
+  }
+  cube.finish(in.split_stats);
 }
 
 // ---------------------------------------------------------------- reading

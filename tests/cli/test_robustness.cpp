@@ -83,10 +83,15 @@ TEST_CASE("command-line parse errors and an unknown command are one line", "[cli
 
 TEST_CASE("SIGINT or SIGTERM while the cube is assembled stops with exit 1 and the run resumes",
           "[cli][robustness][e2e]") {
-  // Was swallowed: exit 0 after the assembly, no message. An invented grid
-  // whose cube (~70 MB of metrics) takes most of a second to assemble
-  // in the Release build (measured 2026-12-03), far more than the 5 ms the
-  // test takes to see the .partial file and send the signal.
+  // Was swallowed: exit 0 after the assembly, no message. A run writes its
+  // chunks into the cube as they are computed; the assembly that a signal
+  // can meet is a resumed run's, of the chunks only its journal holds. The
+  // journal is made whole first, by a run whose cube cannot reach its full
+  // size (a file-size limit one byte short of it: the cube is dropped, the
+  // journal, a little smaller, completes). An invented grid whose cube
+  // (~70 MB of metrics) then takes a good part of a second to assemble from
+  // the journal in the Release build (measured 2026-12-03), far more than
+  // the 5 ms the test takes to see the .partial file and send the signal.
   const char* text = R"(
 title = "interrupted assembly"
 [grid]
@@ -110,6 +115,12 @@ tables = ""
   for (const int sig : {SIGINT, SIGTERM}) {
     covergrid::test::ScratchDir dir("assembly-signal");
     std::ofstream(dir.path() / "a.toml") << text;
+    const auto limit_kib = (std::filesystem::file_size(single.path() / "a.h5") - 1) / 1024;
+    const std::string script = fmt::format("trap '' XFSZ; ulimit -f {}; exec '{}' run a.toml --quiet",
+                                           limit_kib * 2, COVERGRID_EXE);  // dash: 512 B
+    REQUIRE(covergrid::test::wait_status(covergrid::test::spawn(dir.path(), {"-c", script}, "/bin/sh")) == 2);
+    REQUIRE(covergrid::test::slurp(dir.path() / "stderr.txt").find("200 of 200 chunks are saved") !=
+            std::string::npos);
     const pid_t pid = covergrid::test::spawn(dir.path(), {"run", "a.toml", "--quiet"});
     covergrid::test::wait_for_bytes(dir.path() / "a.h5.partial", 0);  // the assembly has begun
     kill(pid, sig);

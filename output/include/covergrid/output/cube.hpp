@@ -25,7 +25,9 @@
 #include <array>
 #include <functional>
 #include <map>
+#include <memory>
 #include <atomic>
+#include <cstdint>
 #include <stdexcept>
 #include <string>
 #include <vector>
@@ -77,7 +79,37 @@ struct CubeContents {
   const SplitStats& split_stats;
 };
 
-/// Writes the HDF5 cube to `path` (truncating it); complete = 1 at the end.
+/// The HDF5 cube being written at `path` (truncated): every group, axis and
+/// dataset made on construction (complete = 0), then the chunks in any
+/// order (add; the datasets' values do not depend on the order), then
+/// finish() with the split rows' statistics and the progress record
+/// (complete = 1). A run adds each chunk as it is computed, beside its
+/// journal record, so that the assembly overlaps the computation.
+class CubeAssembly {
+ public:
+  CubeAssembly(const std::string& path, const engine::Scenario& scenario, const engine::Plan& plan,
+               const engine::ShardSelection* shard);
+  /// The chunk is one this cube holds (all, or the shard's).
+  bool belongs(std::size_t chunk) const { return chunk < done_.size() && done_[chunk]; }
+  bool added(std::size_t chunk) const;
+  void add(const engine::ChunkResult& r);
+  /// Needs every chunk that belongs added.
+  void finish(const SplitStats& split_stats);
+
+ private:
+  const engine::Scenario& s_;
+  const engine::Plan& plan_;
+  const engine::ShardSelection* shard_;
+  File file_;
+  std::size_t S_ = 0, L_ = 0, M_ = 0;
+  std::vector<hsize_t> chunk_;  // a metric's storage chunk
+  std::vector<Handle> exact_, mc_, stats_, mc_stats_;
+  Handle mc_reps_;
+  std::vector<std::uint8_t> done_, added_;
+};
+
+/// Writes the HDF5 cube to `path` (truncating it) from `contents`, the chunks
+/// in plan order; complete = 1 at the end.
 void assemble_cube(const std::string& path, const CubeContents& contents);
 
 /// Thrown by CubeWriter::finish() when the stop flag (set_stop) was raised
@@ -148,6 +180,14 @@ class CubeWriter final : public engine::ResultSink {
   std::string resume_note_;
   SplitStats split_stats_;
   const std::atomic<bool>* stop_ = nullptr;
+  /// The cube under its temporary name, open from the first chunk written
+  /// on: each chunk computed here goes into it beside its journal record;
+  /// finish() adds the chunks only the journal holds (a resumed run's, a
+  /// remote rank's) and closes it. Removed if the writer ends unfinished.
+  std::unique_ptr<CubeAssembly> assembly_;
+  bool progressive_failed_ = false;  // the cube could not be written while running: finish() builds it
+  void open_assembly();
+  void drop_assembly();
 };
 
 /// Throws the InputError for a dataset of `path` that cannot be read: a
