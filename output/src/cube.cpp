@@ -710,8 +710,16 @@ void CubeWriter::append_record(std::size_t chunk) {
 
 void CubeWriter::checkpoint() {
   // Each record is handed to the kernel by write() as it is made, so a killed
-  // process loses nothing written; fdatasync makes it survive a crash of the
-  // machine too.
+  // process loses nothing written. fdatasync makes it survive a crash of the
+  // machine too; it is done at most every sync_interval: syncing after every
+  // few chunks wrote the whole journal to the disk even when the run ended
+  // (and deleted it) seconds later (`scripts/bench whole`).
+  if (std::chrono::steady_clock::now() - last_sync_ >= sync_interval) sync();
+}
+
+void CubeWriter::sync() {
+  last_sync_ = std::chrono::steady_clock::now();
+  if (fd_ < 0) return;
   if (::fdatasync(fd_) != 0 && errno != EINVAL) {
     if (out_of_space_errno(errno)) refuse_out_of_space(journal_path_, "");
     throw CubeError(fmt::format("cannot sync {}: {}", journal_path_, std::strerror(errno)));
@@ -1033,6 +1041,11 @@ CubeAssembly::CubeAssembly(const std::string& path, const engine::Scenario& scen
       const std::string stat(engine::stat_names[k]);
       mc_stats.push_back(make_stat("mc_" + stat, stat, "simulated "));
     }
+  // The metrics share one storage layout: asked of one, it holds for all.
+  if (!exact_.empty())
+    direct_ = takes_whole_chunks(exact_.front().get());
+  else if (!mc_.empty())
+    direct_ = takes_whole_chunks(mc_.front().get());
   // The chunks this cube holds (a shard's only), as /progress/done records them.
   done_.assign(plan_.chunks.size(), shard ? 0 : 1);
   if (shard)
@@ -1055,7 +1068,7 @@ void CubeAssembly::add(const engine::ChunkResult& r) {
   const std::vector<hsize_t> scount = {1, S, L, M, c.n_count};
   if (r.has_exact)
     for (std::size_t k = 0; k < engine::metric_count; ++k)
-      write_whole_chunks(exact[k].get(), chunk, start, count, r.exact[k].data());
+      write_whole_chunks(exact[k].get(), chunk, start, count, r.exact[k].data(), direct_);
   if (r.has_row_stats)
     for (std::size_t k = 0; k < r.row_stats.size(); ++k)
       write_block(stats[engine::grid_stat_count + k].get(), sstart, scount, r.row_stats[k].data());
@@ -1064,7 +1077,7 @@ void CubeAssembly::add(const engine::ChunkResult& r) {
       write_block(stats[k].get(), sstart, scount, r.grid_stats[k].data());
   if (r.has_mc) {
     for (std::size_t k = 0; k < engine::mc_metric_count; ++k)
-      write_whole_chunks(mc[k].get(), chunk, start, count, r.mc[k].data());
+      write_whole_chunks(mc[k].get(), chunk, start, count, r.mc[k].data(), direct_);
     write_block_i64(mc_reps.get(), {c.model, c.n_begin, c.p_begin}, {1, c.n_count, c.p_count},
                     replicate_counts(r.mc_replicates).data());
   }

@@ -412,11 +412,7 @@ std::uint32_t fletcher32(const void* data, std::size_t size) {
   return (sum2 << 16) | sum1;
 }
 
-namespace {
-
-/// True when the dataset's filter pipeline is Fletcher-32 alone and its
-/// file type is little-endian float64 (the bytes of a native double here).
-bool checksum_only(hid_t dataset) {
+bool takes_whole_chunks(hid_t dataset) {
   if constexpr (std::endian::native != std::endian::little) return false;
   Handle type(check_id(H5Dget_type(dataset), "get a dataset's type"), H5Tclose);
   if (H5Tequal(type.get(), H5T_IEEE_F64LE) <= 0) return false;
@@ -429,17 +425,15 @@ bool checksum_only(hid_t dataset) {
          H5Z_FILTER_FLETCHER32;
 }
 
-}  // namespace
-
 void write_whole_chunks(hid_t dataset, const std::vector<hsize_t>& chunk, const std::vector<hsize_t>& start,
-                        const std::vector<hsize_t>& count, const double* data) {
+                        const std::vector<hsize_t>& count, const double* data, bool direct) {
   const std::size_t rank = chunk.size();
   if (start.size() != rank || count.size() != rank || rank == 0)
     throw std::logic_error("internal: write_whole_chunks given blocks of another rank");
   for (std::size_t d = 0; d < rank; ++d)
     if (chunk[d] == 0 || start[d] % chunk[d] != 0)
       throw std::logic_error("internal: write_whole_chunks given a block that does not start a chunk");
-  if (!checksum_only(dataset)) {
+  if (!direct) {
     write_block(dataset, start, count, data);
     return;
   }

@@ -93,7 +93,7 @@ TEST_CASE("write_whole_chunks stores what write_block stores, chunk for chunk", 
     for (auto& v : data) v = z(g);
     data[0] = std::nan("");  // a NaN payload of its own travels as it is
     o::write_block(a.get(), start, count, data.data());
-    o::write_whole_chunks(b.get(), chunk, start, count, data.data());
+    o::write_whole_chunks(b.get(), chunk, start, count, data.data(), o::takes_whole_chunks(b.get()));
   }
   hsize_t chunks_a = 0, chunks_b = 0;
   o::Handle space_a(o::check_id(H5Dget_space(a.get()), "space"), H5Sclose);
@@ -102,6 +102,7 @@ TEST_CASE("write_whole_chunks stores what write_block stores, chunk for chunk", 
   o::check(H5Dget_num_chunks(b.get(), space_b.get(), &chunks_b), "count");
   REQUIRE(chunks_a == chunks_b);
   REQUIRE(chunks_a > 4);
+  REQUIRE(o::takes_whole_chunks(b.get()));
   for (hsize_t i = 0; i < chunks_a; ++i) {
     std::vector<hsize_t> offset(4);
     unsigned mask = 0;
@@ -127,5 +128,9 @@ TEST_CASE("write_whole_chunks refuses a block that does not start a chunk", "[ou
   auto file = o::File::create(dir.path().string() + "/r.h5");
   auto a = o::create_double_dataset(file.id(), "a", {8}, {4}, o::ChunkedStorage{false, 0});
   const std::vector<double> data(4, 1.0);
-  CHECK_THROWS_AS(o::write_whole_chunks(a.get(), {4}, {2}, {4}, data.data()), std::logic_error);
+  CHECK_THROWS_AS(o::write_whole_chunks(a.get(), {4}, {2}, {4}, data.data(), true), std::logic_error);
+  // A compressed dataset does not take whole chunks from us.
+  auto c = o::create_double_dataset(file.id(), "c", {8}, {4}, o::ChunkedStorage{true, 0});
+  CHECK(o::takes_whole_chunks(a.get()));
+  CHECK_FALSE(o::takes_whole_chunks(c.get()));
 }

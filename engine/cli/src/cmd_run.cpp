@@ -30,6 +30,18 @@ namespace {
 std::atomic<bool> stop_requested{false};
 extern "C" void on_stop_signal(int) { stop_requested.store(true); }
 
+/// Syncs the journal of a run that stops unfinished, so that it survives a
+/// crash of the machine as well as the process's end. The run's own failure
+/// is what gets reported: a sync that fails as well (a full disk) adds
+/// nothing a user could act on, and what write() handed the kernel stays.
+void sync_for_resume(output::CubeWriter& writer) {
+  try {
+    writer.sync();
+  } catch (const std::exception&) {
+    // The records themselves are written; only their durability is unsure.
+  }
+}
+
 struct RunArgs {
   std::string scenario_file;
   int threads = 0;
@@ -178,6 +190,7 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
       std::signal(SIGINT, old_int);
       std::signal(SIGTERM, old_term);
       progress.done();
+      sync_for_resume(writer);
       err << fmt::format(
           "covergrid: stopped while the cube was being assembled; all {} chunks are saved in {}; run the "
           "same command to resume (it assembles the cube)\n",
@@ -205,6 +218,9 @@ int run_root(const RunArgs& a, std::ostream& out, std::ostream& err) {
                          report.failure.empty() ? "stopped" : report.failure);
       return exit_internal;
     }
+    // A run that stops unfinished syncs its journal now (it is otherwise
+    // synced at most every few seconds while running).
+    if (!report.failure.empty() || report.interrupted) sync_for_resume(writer);
     if (!report.failure.empty()) {
       err << fmt::format(
           "covergrid: {}; the run stopped; {} of {} chunks are saved in {}; run the same command (with or "

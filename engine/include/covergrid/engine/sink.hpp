@@ -48,7 +48,9 @@ class ResultSink {
   virtual std::vector<char> completed() = 0;
   /// Stores one chunk's results (in any order of chunks).
   virtual void write_chunk(const ChunkResult& result) = 0;
-  /// Makes what was written durable and records those chunks as complete.
+  /// Records the chunks written so far as complete; a sink may make them
+  /// durable against a crash of the machine here (the cube writer does so at
+  /// most every few seconds).
   virtual void checkpoint() = 0;
   /// Reads back one metric (Metric index; for Source::mc the mc_metric index)
   /// for rows [n_begin, n_begin + n_count) of a model and p points

@@ -27,6 +27,7 @@
 #include <map>
 #include <memory>
 #include <atomic>
+#include <chrono>
 #include <cstdint>
 #include <stdexcept>
 #include <string>
@@ -103,6 +104,7 @@ class CubeAssembly {
   File file_;
   std::size_t S_ = 0, L_ = 0, M_ = 0;
   std::vector<hsize_t> chunk_;  // a metric's storage chunk
+  bool direct_ = false;         // the metrics take whole chunks (takes_whole_chunks)
   std::vector<Handle> exact_, mc_, stats_, mc_stats_;
   Handle mc_reps_;
   std::vector<std::uint8_t> done_, added_;
@@ -136,7 +138,12 @@ class CubeWriter final : public engine::ResultSink {
   void write_chunk(const engine::ChunkResult& result) override;
   /// Appends an already encoded chunk (encode_chunk) to the journal.
   void write_encoded(std::size_t chunk, const std::string& payload);
+  /// Syncs the journal to the disk when sync_interval has passed since the
+  /// last sync (write() alone already keeps it from a killed process).
   void checkpoint() override;
+  /// Syncs the journal now: for a run that stops unfinished.
+  void sync();
+  static constexpr std::chrono::seconds sync_interval{5};
   void read_rows(engine::Source source, std::size_t metric, std::size_t model, std::size_t n_begin,
                  std::size_t n_count, std::size_t p_begin, std::size_t p_count,
                  std::vector<double>& out) override;
@@ -180,6 +187,7 @@ class CubeWriter final : public engine::ResultSink {
   std::string resume_note_;
   SplitStats split_stats_;
   const std::atomic<bool>* stop_ = nullptr;
+  std::chrono::steady_clock::time_point last_sync_ = std::chrono::steady_clock::now();
   /// The cube under its temporary name, open from the first chunk written
   /// on: each chunk computed here goes into it beside its journal record;
   /// finish() adds the chunks only the journal holds (a resumed run's, a

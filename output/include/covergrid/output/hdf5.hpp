@@ -128,9 +128,14 @@ void write_block(hid_t dataset, const std::vector<hsize_t>& start, const std::ve
 /// reach), checksummed here (fletcher32) and handed to HDF5 whole
 /// (H5Dwrite_chunk). The stored bytes are what write_block stores; HDF5's
 /// own write path spent most of the assembly copying and checksumming
-/// (`scripts/bench whole`). Other datasets go through write_block.
+/// (`scripts/bench whole`). `direct` says takes_whole_chunks(dataset) (asked
+/// once per dataset: it costs a property list); false goes to write_block.
 void write_whole_chunks(hid_t dataset, const std::vector<hsize_t>& chunk, const std::vector<hsize_t>& start,
-                        const std::vector<hsize_t>& count, const double* data);
+                        const std::vector<hsize_t>& count, const double* data, bool direct);
+/// True for a float64 (little-endian) dataset whose only filter is
+/// Fletcher-32, on a little-endian machine: write_whole_chunks can lay out
+/// its chunks.
+bool takes_whole_chunks(hid_t dataset);
 /// HDF5's Fletcher-32 of `size` bytes, bit for bit as its filter computes it
 /// (16-bit big-endian words, folded every 360 words), summed a block of 360
 /// words at a time so that the compiler can vectorise it.
