@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <optional>
 
 namespace covergrid::engine {
 
@@ -123,6 +124,44 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
     w[i] = from[i];
     cum[i + 1] = sum + from[i];
   }
+}
+
+std::optional<double> binomial_run_sum(int a, int b, int n, double p) {
+  a = std::max(a, 0);
+  b = std::min(b, n);
+  if (a > b) return 0.0;
+  if (a == 0 && b == n) return 1.0;
+  if (p <= 0.0) return a == 0 ? 1.0 : 0.0;
+  if (p >= 1.0) return b == n ? 1.0 : 0.0;
+  const double q = 1.0 - p;
+  // Terms beyond about 9 standard deviations of the start fall below 2^-60
+  // of the sum; the run itself may be shorter.
+  const double span = std::min(static_cast<double>(b - a) + 1.0, 20.0 * std::sqrt(n * p * q) + 10.0);
+  if (span > 128.0) return std::nullopt;
+  const std::vector<double>& inv = reciprocals(static_cast<std::size_t>(n) + 2);
+  const bool table = inv.size() >= static_cast<std::size_t>(n) + 2;
+  auto one_over = [&](int k) { return table ? inv[static_cast<std::size_t>(k)] : 1.0 / k; };
+  const double odds = p / q, inv_odds = q / p;
+  const int mode = std::clamp(static_cast<int>(std::floor((n + 1.0) * p)), 0, n);
+  const int start = std::clamp(mode, a, b);
+  const double first = methods::binomial_pmf(start, n, p);
+  constexpr double relative = 0x1p-60;
+  double down = 0, up = 0;
+  double term = first;
+  for (int k = start; k > a; --k) {
+    const double s = k * inv_odds * one_over(n - k + 1);  // P(k - 1) / P(k) < 1 at or below the mode
+    term *= s;
+    down += term;
+    if (s < 1.0 && term * s <= relative * first * (1.0 - s)) break;
+  }
+  term = first;
+  for (int k = start; k < b; ++k) {
+    const double r = (n - k) * odds * one_over(k + 1);  // P(k + 1) / P(k) < 1 at or above the mode
+    term *= r;
+    up += term;
+    if (r < 1.0 && term * r <= relative * first * (1.0 - r)) break;
+  }
+  return first + (down + up);
 }
 
 }  // namespace covergrid::engine

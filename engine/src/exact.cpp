@@ -213,6 +213,7 @@ double coverage_by_enumeration(const IntervalTable& table, double p, const Sampl
 
 double run_probability(int a, int b, int n, double p) {
   if (a > b) return 0.0;
+  if (const auto sum = binomial_run_sum(a, b, n, p)) return *sum;
   return 1.0 - methods::binomial_cdf(a - 1, n, p) - methods::binomial_sf(b, n, p);
 }
 

@@ -23,10 +23,9 @@ constexpr std::size_t batch = 64;
 
 // Integer arithmetic only, so the AVX2 clone (chosen at run time where the
 // processor has it) and the baseline give identical bits.
-__attribute__((target_clones("avx512f", "avx2", "default"))) void philox_batch(std::uint64_t first_block,
-                                                                    std::uint32_t c2, std::uint32_t c3,
-                                                                    std::uint32_t k0, std::uint32_t k1,
-                                                                    std::uint32_t (&out)[4][batch]) {
+__attribute__((target_clones("avx512f", "avx2", "default"))) void philox_batch(
+    std::uint64_t first_block, std::uint32_t c2, std::uint32_t c3, std::uint32_t k0, std::uint32_t k1,
+    std::uint32_t (&out)[4][batch]) {
   // 32-bit words kept in 64-bit lanes: the multiply is then one pmuludq /
   // vpmuludq per lane pair or quad, with no repacking.
   std::uint64_t x0[batch], x1[batch], x2[batch], x3[batch];
@@ -67,8 +66,8 @@ __attribute__((target_clones("avx512f", "avx2", "default"))) void philox_batch(s
 /// 52-bit uniforms in [0, 1) from the 64-bit words: the top 52 bits become
 /// the mantissa of a double in [1, 2), minus 1. Branch-free and vectorisable
 /// (SSE2 has no packed 64-bit integer to double conversion).
-__attribute__((target_clones("avx512f", "avx2", "default"))) void to_uniforms(const std::uint32_t (&r)[4][batch],
-                                                                   double* u) {
+__attribute__((target_clones("avx512f", "avx2", "default"))) void to_uniforms(
+    const std::uint32_t (&r)[4][batch], double* u) {
   for (std::size_t b = 0; b < batch; ++b) {
     const std::uint64_t a = (std::uint64_t{r[0][b]} << 32) | r[1][b];
     const std::uint64_t c = (std::uint64_t{r[2][b]} << 32) | r[3][b];

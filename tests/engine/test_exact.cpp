@@ -110,6 +110,36 @@ TEST_CASE("exact metrics agree with an independent enumeration", "[engine][exact
   }
 }
 
+TEST_CASE("run sums of the binomial equal the incomplete-beta form", "[engine][window]") {
+  // P(a <= X <= b) as a sum of terms against 1 - F(a - 1) - S(b) from
+  // Boost.Math's incomplete beta (methods::binomial_cdf / binomial_sf), and
+  // the tail runs against the tails themselves (relative accuracy there).
+  int summed = 0, declined = 0;
+  for (int n : {1, 2, 7, 30, 200, 1000, 100000})
+    for (double p : {1e-12, 1e-4, 0.003, 0.1, 0.37, 0.5, 0.93, 1 - 1e-9})
+      for (double fa : {0.0, 0.2, 0.45, 0.5, 0.8})
+        for (double fb : {0.0, 0.3, 0.55, 1.0}) {
+          const int a = static_cast<int>(fa * n), b = static_cast<int>(a + fb * (n - a));
+          const auto sum = e::binomial_run_sum(a, b, n, p);
+          INFO("n = " << n << ", p = " << p << ", run " << a << ".." << b);
+          if (!sum) {
+            ++declined;
+            continue;
+          }
+          ++summed;
+          const double reference = 1.0 - m::binomial_cdf(a - 1, n, p) - m::binomial_sf(b, n, p);
+          CHECK(*sum == Approx(reference).margin(2e-15));
+          if (b == n && a > 0)
+            CHECK(*sum == Approx(m::binomial_sf(a - 1, n, p)).epsilon(1e-12).margin(1e-300));
+          if (a == 0 && b < n) CHECK(*sum == Approx(m::binomial_cdf(b, n, p)).epsilon(1e-12).margin(1e-300));
+        }
+  // Both paths occur: short runs and small n are summed, long ones declined.
+  CHECK(summed > 500);
+  CHECK(declined > 20);
+  CHECK(e::binomial_run_sum(5, 4, 10, 0.3) == 0.0);
+  CHECK(e::binomial_run_sum(-3, 20, 10, 0.3) == 1.0);
+}
+
 TEST_CASE("the one-pass cell kernel gives exact_metrics' values bit for bit, whatever the order of p",
           "[engine][exact]") {
   // Every method with defaults, at both levels and all sides, so that the
