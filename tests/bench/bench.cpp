@@ -622,6 +622,9 @@ void whole() {
                100 * (journal + assemble + tables) / total);
     const double method_cells = static_cast<double>(s.n.size() * s.p.size() * s.methods.size());
     fmt::print("    evaluation {:.3g} method-cells/s per thread (target >= 5e6)\n", method_cells / evaluate);
+    const double evaluate_two = run_null(s, 2);
+    fmt::print("    evaluation alone on 2 threads {:.3f} s ({:.2f} x one thread's)\n", evaluate_two,
+               evaluate / evaluate_two);
   }
 }
 
