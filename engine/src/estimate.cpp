@@ -29,10 +29,13 @@ constexpr double kMaxShare = 0.02;
 // Replicates per cell in a calibration probe (see estimate_run).
 constexpr std::uint64_t kProbeReplicates = 64;
 
-// The cube's assembly from the journal at the end (deflate, one core):
-// about 12 s per GB of uncompressed data, measured on the project's
-// two-core machine (the full-catalog scenario, 1.6 GB of data, 2026-12-02).
-constexpr double kAssemblySecondsPerByte = 12e-9;
+// Writing the output, one chunk at a time beside the computation (journal
+// record, then the cube's storage chunks, checksummed, not deflated):
+// about 1.5 s per GB of data on the project's two-core machine (the
+// prototype grid's 110 MB in 0.13 to 0.20 s, `scripts/bench whole`,
+// 2026-12-03; it was 12 s per GB when the cube was deflated and assembled
+// from the journal at the end).
+constexpr double kAssemblySecondsPerByte = 1.5e-9;
 
 }  // namespace
 

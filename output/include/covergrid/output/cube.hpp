@@ -42,9 +42,10 @@ inline constexpr std::array<const char*, 6> axis_names = {"model", "side", "leve
 /// beside the cube (`CUBE.journal`): a header with the scenario checksum and
 /// the chunk layout, then one record per finished chunk (length and checksum
 /// guarded). A killed run leaves at worst a torn last record, which resume
-/// drops; nothing complete is lost. When every chunk is in, the HDF5 cube is
-/// assembled chunk by chunk under a temporary name (`CUBE.partial`), renamed
-/// into place, and the journal removed.
+/// drops; nothing complete is lost. Each chunk also goes into the HDF5 cube
+/// under a temporary name (`CUBE.partial`) as soon as its record is written
+/// (CubeAssembly); when every chunk is in, the cube is finished, renamed into
+/// place, and the journal removed.
 std::string journal_path(const std::string& cube_path);
 std::string partial_path(const std::string& cube_path);
 
