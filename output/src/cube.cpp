@@ -969,7 +969,8 @@ CubeAssembly::CubeAssembly(const std::string& path, const engine::Scenario& scen
   // 1.3x on the continuous metrics (full mantissas) at most of the assembly
   // time, and on degenerate and overshoot (mostly exact zeros: 4 to 9x) they
   // cost 0.14 s of a 0.85 s run for 25 of 110 MB. `h5repack` makes an
-  // archival copy smaller, and covergrid reads it as it reads its own.
+  // archival copy smaller (for other HDF5 readers; the cube reader refuses
+  // its link storage).
   auto make_metric = [&](hid_t group, const std::vector<Handle>& scales, const std::string& name,
                          const std::string& prefix) {
     Handle d = create_double_dataset(group, name, dims, chunk, ChunkedStorage{false, 0});
