@@ -24,6 +24,23 @@ const std::vector<double>& reciprocals(std::size_t need) {
   return inv;
 }
 
+/// The ratios of neighbouring Bin(n, p) terms, with 1/k from the table.
+struct Ratios {
+  Ratios(int n_, double p)
+      : n(n_),
+        odds(p / (1.0 - p)),
+        inv_odds((1.0 - p) / p),
+        inv(reciprocals(static_cast<std::size_t>(n_) + 2)),
+        table(inv.size() >= static_cast<std::size_t>(n_) + 2) {}
+  double one_over(int k) const { return table ? inv[static_cast<std::size_t>(k)] : 1.0 / k; }
+  double down(int k) const { return k * inv_odds * one_over(n - k + 1); }  // P(k - 1) / P(k)
+  double up(int k) const { return (n - k) * odds * one_over(k + 1); }      // P(k + 1) / P(k)
+  int n;
+  double odds, inv_odds;
+  const std::vector<double>& inv;
+  bool table;  // 1/k comes from inv (n within its limit)
+};
+
 }  // namespace
 
 void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
@@ -37,13 +54,9 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
     out.sum_up();
     return;
   }
-  const double q = 1.0 - p;
-  const double odds = p / q, inv_odds = q / p;
+  const Ratios ratio(n, p);
   const int mode = std::clamp(static_cast<int>(std::floor((n + 1.0) * p)), 0, n);
   const double at_mode = methods::binomial_pmf(mode, n, p);
-  const std::vector<double>& inv = reciprocals(static_cast<std::size_t>(n) + 2);
-  const bool table = inv.size() >= static_cast<std::size_t>(n) + 2;
-  auto one_over = [&](int k) { return table ? inv[static_cast<std::size_t>(k)] : 1.0 / k; };
 
   // Both sides are written into a scratch row indexed by x (the lower side
   // downward from the mode), then copied out with the running sums in one
@@ -57,14 +70,12 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
   if (scratch.size() < static_cast<std::size_t>(n) + 1) scratch.resize(static_cast<std::size_t>(n) + 1);
   double* row = scratch.data();
   row[mode] = at_mode;
-  auto down = [&](int at) { return at * inv_odds * one_over(n - at + 1); };  // P(at - 1) / P(at)
-  auto up = [&](int at) { return (n - at) * odds * one_over(at + 1); };      // P(at + 1) / P(at)
   auto ends = [](double term, double s) { return s < 1.0 && term * s <= tail_bound_per_side * (1.0 - s); };
   double term = at_mode;
   int k = mode;
   for (;;) {
     if (k == 0) break;
-    const double s1 = down(k);
+    const double s1 = ratio.down(k);
     if (ends(term, s1)) break;
     const double t1 = term * s1;
     row[k - 1] = t1;
@@ -72,7 +83,7 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
       k = 0;
       break;
     }
-    const double s2 = down(k - 1);
+    const double s2 = ratio.down(k - 1);
     if (ends(t1, s2)) {
       k -= 1;
       break;
@@ -86,7 +97,7 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
   k = mode;
   for (;;) {
     if (k == n) break;
-    const double r1 = up(k);
+    const double r1 = ratio.up(k);
     if (ends(term, r1)) break;
     const double t1 = term * r1;
     row[k + 1] = t1;
@@ -94,7 +105,7 @@ void fill_binomial_window(int n, double p, ProbabilityWindow& out) {
       k = n;
       break;
     }
-    const double r2 = up(k + 1);
+    const double r2 = ratio.up(k + 1);
     if (ends(t1, r2)) {
       k += 1;
       break;
@@ -138,10 +149,7 @@ std::optional<double> binomial_run_sum(int a, int b, int n, double p) {
   // of the sum; the run itself may be shorter.
   const double span = std::min(static_cast<double>(b - a) + 1.0, 20.0 * std::sqrt(n * p * q) + 10.0);
   if (span > 128.0) return std::nullopt;
-  const std::vector<double>& inv = reciprocals(static_cast<std::size_t>(n) + 2);
-  const bool table = inv.size() >= static_cast<std::size_t>(n) + 2;
-  auto one_over = [&](int k) { return table ? inv[static_cast<std::size_t>(k)] : 1.0 / k; };
-  const double odds = p / q, inv_odds = q / p;
+  const Ratios ratio(n, p);
   const int mode = std::clamp(static_cast<int>(std::floor((n + 1.0) * p)), 0, n);
   const int start = std::clamp(mode, a, b);
   const double first = methods::binomial_pmf(start, n, p);
@@ -149,14 +157,14 @@ std::optional<double> binomial_run_sum(int a, int b, int n, double p) {
   double down = 0, up = 0;
   double term = first;
   for (int k = start; k > a; --k) {
-    const double s = k * inv_odds * one_over(n - k + 1);  // P(k - 1) / P(k) < 1 at or below the mode
+    const double s = ratio.down(k);  // < 1 at or below the mode
     term *= s;
     down += term;
     if (s < 1.0 && term * s <= relative * first * (1.0 - s)) break;
   }
   term = first;
   for (int k = start; k < b; ++k) {
-    const double r = (n - k) * odds * one_over(k + 1);  // P(k + 1) / P(k) < 1 at or above the mode
+    const double r = ratio.up(k);  // < 1 at or above the mode
     term *= r;
     up += term;
     if (r < 1.0 && term * r <= relative * first * (1.0 - r)) break;

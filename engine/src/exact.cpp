@@ -117,17 +117,14 @@ void width_moments_group(const double* const* width, const double* w, std::size_
   }
 }
 
-/// lower_bound / upper_bound of p in a sorted array, walked from a previous answer.
-std::size_t walk_first_at_least(const double* v, std::size_t size, std::size_t at, double p) {
+/// The first element of a sorted array not before p, walked from a previous
+/// answer: lower_bound (elements < p come before) or, `strict`, upper_bound
+/// (elements <= p come before).
+std::size_t walk_to(const double* v, std::size_t size, std::size_t at, double p, bool strict) {
+  auto before = [&](double e) { return strict ? e <= p : e < p; };
   at = std::min(at, size);
-  while (at > 0 && v[at - 1] >= p) --at;
-  while (at < size && v[at] < p) ++at;
-  return at;
-}
-std::size_t walk_first_above(const double* v, std::size_t size, std::size_t at, double p) {
-  at = std::min(at, size);
-  while (at > 0 && v[at - 1] > p) --at;
-  while (at < size && v[at] <= p) ++at;
+  while (at > 0 && !before(v[at - 1])) --at;
+  while (at < size && before(v[at])) ++at;
   return at;
 }
 
@@ -183,8 +180,8 @@ void exact_metrics_cell(const IntervalTable* const* tables, std::size_t count,
     // searches over all x, clamped to it (the limits are sorted).
     const std::size_t all = table.upper.size();
     RunCursor& cur = cursors[c];
-    cur.first_up = walk_first_at_least(table.upper.data(), all, cur.first_up, p);
-    cur.past_low = walk_first_above(table.lower.data(), all, cur.past_low, p);
+    cur.first_up = walk_to(table.upper.data(), all, cur.first_up, p, false);
+    cur.past_low = walk_to(table.lower.data(), all, cur.past_low, p, true);
     const std::size_t a = std::clamp(cur.first_up, lo, lo + size) - lo;
     const std::size_t b1 = std::clamp(cur.past_low, lo, lo + size) - lo;
     CellMetrics& m = out[c];

@@ -627,13 +627,7 @@ CubeWriter::~CubeWriter() {
 }
 
 void CubeWriter::open_assembly() {
-  if (assembly_) return;
-  try {
-    assembly_ = std::make_unique<CubeAssembly>(temp_path_, scenario_, plan_, shard_);
-  } catch (const OutOfSpace&) {
-    drop_assembly();
-    refuse_out_of_space(temp_path_, " the cube");
-  }
+  if (!assembly_) assembly_ = std::make_unique<CubeAssembly>(temp_path_, scenario_, plan_, shard_);
 }
 
 void CubeWriter::drop_assembly() {
@@ -671,7 +665,7 @@ void CubeWriter::write_chunk(const engine::ChunkResult& r) {
   if (progressive_failed_) return;
   try {
     quiet_hdf5_errors();  // per thread: the chunks come from any of the run's threads
-    if (!assembly_) assembly_ = std::make_unique<CubeAssembly>(temp_path_, scenario_, plan_, shard_);
+    open_assembly();
     assembly_->add(r);
   } catch (const CubeError&) {
     drop_assembly();
@@ -782,13 +776,10 @@ void CubeWriter::finish() {
   try {
     quiet_hdf5_errors();
     open_assembly();
-    engine::ChunkResult r;  // reused: its vectors keep their memory from chunk to chunk
-    for (const auto& c : plan_.chunks) {
-      if (!assembly_->belongs(c.id) || assembly_->added(c.id)) continue;
+    assembly_->add_missing([this](std::size_t id, engine::ChunkResult& into) {
       if (stop_ && stop_->load()) throw Interrupted("stopped while the cube was being assembled");
-      read_record(c.id, r);
-      assembly_->add(r);
-    }
+      read_record(id, into);
+    });
     assembly_->finish(split_stats_);
     assembly_.reset();
     if (stop_ && stop_->load()) throw Interrupted("stopped while the cube was being assembled");
@@ -1088,7 +1079,14 @@ void CubeAssembly::add(const engine::ChunkResult& r) {
   added_[c.id] = 1;
 }
 
-bool CubeAssembly::added(std::size_t chunk) const { return chunk < added_.size() && added_[chunk]; }
+void CubeAssembly::add_missing(const std::function<void(std::size_t, engine::ChunkResult&)>& load) {
+  engine::ChunkResult r;  // reused: its vectors keep their memory from chunk to chunk
+  for (const auto& c : plan_.chunks) {
+    if (!done_[c.id] || added_[c.id]) continue;
+    load(c.id, r);
+    add(r);
+  }
+}
 
 void CubeAssembly::finish(const SplitStats& split_stats) {
   const engine::Scenario& s = s_;
@@ -1126,12 +1124,7 @@ void CubeAssembly::finish(const SplitStats& split_stats) {
 
 void assemble_cube(const std::string& path, const CubeContents& in) {
   CubeAssembly cube(path, in.scenario, in.plan, in.shard);
-  engine::ChunkResult r;  // reused: its vectors keep their memory from chunk to chunk
-  for (const auto& c : in.plan.chunks) {
-    if (!cube.belongs(c.id)) continue;
-    in.load(c.id, r);
-    cube.add(r);
-  }
+  cube.add_missing(in.load);
   cube.finish(in.split_stats);
 }
 

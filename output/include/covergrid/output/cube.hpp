@@ -91,10 +91,10 @@ class CubeAssembly {
  public:
   CubeAssembly(const std::string& path, const engine::Scenario& scenario, const engine::Plan& plan,
                const engine::ShardSelection* shard);
-  /// The chunk is one this cube holds (all, or the shard's).
-  bool belongs(std::size_t chunk) const { return chunk < done_.size() && done_[chunk]; }
-  bool added(std::size_t chunk) const;
   void add(const engine::ChunkResult& r);
+  /// Adds, in plan order, every chunk this cube holds (all, or the shard's)
+  /// that is not in yet, each filled by `load`.
+  void add_missing(const std::function<void(std::size_t chunk, engine::ChunkResult& into)>& load);
   /// Needs every chunk that belongs added.
   void finish(const SplitStats& split_stats);
 
